@@ -1,0 +1,103 @@
+package gerg2008
+
+import (
+	"fmt"
+	"math"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+// Plausibility bounds on the gas root, documented on Mixture.Flash.
+const (
+	zMin         = 0.05 // a gas root with Z below this is rejected as liquid-like or spurious
+	zMax         = 20.0 // ... and above this as spurious
+	deltaMax     = 6    // no root is sought above 6 times the reducing density
+	scanFromDelt = 0.2  // roots denser than this get the stability scan below them
+	scanPoints   = 8    // points of the scan (k/scanPoints of the root density)
+)
+
+// density solves p(T, D) = p for the gas (vapour-like) root. p is in kPa,
+// T is held in tc; the result is in mol/dm3.
+//
+// Newton's method in ln D starts from the ideal gas D = p/(RT) and is kept
+// inside a bracket [lo, hi]: points with f = p(D) - p < 0 and dp/dD > 0 raise
+// lo; points with f > 0, or with dp/dD <= 0 (mechanically unstable: the gas
+// root lies at a lower density), lower hi; a step leaving the bracket is
+// replaced by a geometric bisection. The converged root is then checked:
+// dp/dD > 0, Z within [zMin, zMax], dp/dD > 0 at scanPoints densities
+// between 0 and the root (so no unstable loop lies below it, i.e. it is on the
+// gas branch, not a liquid root reached across the loop), and not liquid-like
+// (T below the reducing temperature with the density above the reducing
+// density). A failed check is an error wrapping thermo.ErrPhase.
+func (m *Mixture) density(tc *tauCache, p float64) (float64, error) {
+	T := tc.T
+	RT := m.R * T
+	Dig := p / RT
+	D := Dig
+	lo, hi := 0.0, deltaMax*m.Dr
+	unstableHi := false // hi was set by a mechanically unstable point
+	converged := false
+	for it := 0; it < 200; it++ {
+		P, dPdD := m.pressure(tc, D)
+		if !(dPdD > 0) || math.IsNaN(P) {
+			hi, unstableHi = D, true
+		} else {
+			f := P - p
+			if f < 0 {
+				lo = D
+			} else {
+				hi, unstableHi = D, false
+			}
+			step := -f / (D * dPdD) // Newton step in ln D
+			if math.Abs(step) < 1e-10 {
+				D *= math.Exp(step) // quadratic convergence: the applied step leaves ~1e-20
+				converged = true
+				break
+			}
+			step = math.Max(-1, math.Min(1, step))
+			if Dn := D * math.Exp(step); Dn > lo && Dn < hi {
+				D = Dn
+				continue
+			}
+		}
+		if hi-lo <= 1e-14*hi {
+			break
+		}
+		if lo > 0 {
+			D = math.Sqrt(lo * hi)
+		} else {
+			D = hi / 2
+		}
+	}
+	if !converged {
+		if unstableHi || hi-lo <= 1e-14*hi {
+			return 0, fmt.Errorf("%s: no gas root at T = %g K, p = %g Pa: the pressure exceeds the gas branch of the isotherm (liquid or two-phase): %w",
+				Name, T, 1000*p, thermo.ErrPhase)
+		}
+		return 0, fmt.Errorf("%s: density at T = %g K, p = %g Pa: %w", Name, T, 1000*p, thermo.ErrNoConvergence)
+	}
+	P, dPdD := m.pressure(tc, D)
+	Z := P / (D * RT)
+	if !(dPdD > 0) || math.Abs(P-p) > 1e-9*p {
+		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa is not a stable solution (dp/drho = %g): %w",
+			Name, T, 1000*p, dPdD, thermo.ErrPhase)
+	}
+	if !(Z >= zMin && Z <= zMax) {
+		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa has Z = %g against the ideal gas, outside [%g, %g]: %w",
+			Name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
+	}
+	delta := D / m.Dr
+	if delta > scanFromDelt {
+		for k := 1; k < scanPoints; k++ {
+			if _, d := m.pressure(tc, D*float64(k)/scanPoints); !(d > 0) {
+				return 0, fmt.Errorf("%s: at T = %g K, p = %g Pa the only root found (%g kg/m3) lies beyond an unstable part of the isotherm (liquid side): %w",
+					Name, T, 1000*p, D*m.mg, thermo.ErrPhase)
+			}
+		}
+	}
+	if T < m.Tr && delta > 1 {
+		return 0, fmt.Errorf("%s: T = %g K, p = %g Pa gives a liquid-like state (T below the reducing temperature %.2f K, density %g kg/m3 above the reducing density %g kg/m3): %w",
+			Name, T, 1000*p, m.Tr, D*m.mg, m.Dr*m.mg, thermo.ErrPhase)
+	}
+	return D, nil
+}

@@ -1,0 +1,257 @@
+package gerg2008
+
+import "math"
+
+// tauCache holds the temperature-dependent factors n_k tau^t_k of every
+// merged residual term; it lives on the caller's stack.
+type tauCache struct {
+	T, tau float64
+	nt     [maxTerms]float64
+}
+
+func (m *Mixture) setTau(tc *tauCache, T float64) {
+	tc.T = T
+	tc.tau = m.Tr / T
+	lt := math.Log(tc.tau)
+	for k := range m.ts.list {
+		tm := &m.ts.list[k]
+		if tm.t == 0 {
+			tc.nt[k] = tm.n
+		} else {
+			tc.nt[k] = tm.n * math.Exp(tm.t*lt)
+		}
+	}
+}
+
+// resid holds the residual Helmholtz energy and its reduced derivatives:
+// a = alpha_r, d = delta ar_d, dd = delta^2 ar_dd, ddd = delta^3 ar_ddd,
+// t = tau ar_t, tt = tau^2 ar_tt, dt = delta tau ar_dt.
+type resid struct {
+	a, d, dd, ddd, t, tt, dt float64
+}
+
+// residual evaluates alpha_r and its derivatives at reduced density delta
+// for the temperature held in tc.
+func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
+	ts := m.ts
+	var dp [maxDelta + maxC]float64
+	dp[0] = 1
+	for k := 1; k < len(dp); k++ {
+		dp[k] = dp[k-1] * delta
+	}
+	list := ts.list
+	nt := &tc.nt
+	// Polynomial terms: n delta^d tau^t.
+	for k := 0; k < ts.nPoly; k++ {
+		tm := &list[k]
+		F := nt[k] * dp[tm.d]
+		g := float64(tm.d)
+		q := g * (g - 1)
+		r.a += F
+		r.d += F * g
+		r.dd += F * q
+		r.ddd += F * q * (g - 2)
+		r.t += F * tm.t
+		r.tt += F * tm.t * (tm.t - 1)
+		r.dt += F * tm.t * g
+	}
+	// Pure-fluid exponential terms: n delta^d tau^t exp(-delta^c).
+	var ec [maxC]float64
+	for _, c := range ts.cList {
+		ec[c] = math.Exp(-dp[c])
+	}
+	end := ts.nPoly + ts.nExp
+	for k := ts.nPoly; k < end; k++ {
+		tm := &list[k]
+		dc := dp[tm.c]
+		F := nt[k] * dp[tm.d] * ec[tm.c]
+		c := float64(tm.c)
+		g := float64(tm.d) - c*dc
+		h := c * c * dc
+		q := g*(g-1) - h
+		r.a += F
+		r.d += F * g
+		r.dd += F * q
+		r.ddd += F * (q*(g-2) - h*(2*g-1+c))
+		r.t += F * tm.t
+		r.tt += F * tm.t * (tm.t - 1)
+		r.dt += F * tm.t * g
+	}
+	// Departure exponential terms: n delta^d tau^t exp(-eta (delta-eps)^2 - beta (delta-gamma)).
+	var ee, s1, s2, e2 [maxDepExp]float64
+	for k, de := range ts.depExp {
+		dm := delta - de.eps
+		ee[k] = math.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		s1[k] = -2*de.eta*delta*dm - de.beta*delta                            // delta d(exponent)/d delta
+		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta // delta d(s1)/d delta
+		e2[k] = 2 * de.eta * delta * delta
+	}
+	for k := end; k < len(list); k++ {
+		tm := &list[k]
+		e := tm.e
+		F := nt[k] * dp[tm.d] * ee[e]
+		d := float64(tm.d)
+		g := d + s1[e]
+		q := g*g - d - e2[e]
+		r.a += F
+		r.d += F * g
+		r.dd += F * q
+		r.ddd += F * (q*(g-2) + 2*g*s2[e] - 2*e2[e])
+		r.t += F * tm.t
+		r.tt += F * tm.t * (tm.t - 1)
+		r.dt += F * tm.t * g
+	}
+	return r
+}
+
+// pressure returns p in kPa and dp/dD in kPa/(mol/dm3) at T (held in tc)
+// and molar density D in mol/dm3. It evaluates only the delta derivatives.
+func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
+	ts := m.ts
+	delta := D / m.Dr
+	var dp [maxDelta + maxC]float64
+	dp[0] = 1
+	for k := 1; k < len(dp); k++ {
+		dp[k] = dp[k-1] * delta
+	}
+	list := ts.list
+	nt := &tc.nt
+	var rd, rdd float64
+	for k := 0; k < ts.nPoly; k++ {
+		tm := &list[k]
+		F := nt[k] * dp[tm.d]
+		g := float64(tm.d)
+		rd += F * g
+		rdd += F * g * (g - 1)
+	}
+	var ec [maxC]float64
+	for _, c := range ts.cList {
+		ec[c] = math.Exp(-dp[c])
+	}
+	end := ts.nPoly + ts.nExp
+	for k := ts.nPoly; k < end; k++ {
+		tm := &list[k]
+		dc := dp[tm.c]
+		F := nt[k] * dp[tm.d] * ec[tm.c]
+		c := float64(tm.c)
+		g := float64(tm.d) - c*dc
+		rd += F * g
+		rdd += F * (g*(g-1) - c*c*dc)
+	}
+	var ee, s1, e2 [maxDepExp]float64
+	for k, de := range ts.depExp {
+		dm := delta - de.eps
+		ee[k] = math.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		s1[k] = -2*de.eta*delta*dm - de.beta*delta
+		e2[k] = 2 * de.eta * delta * delta
+	}
+	for k := end; k < len(list); k++ {
+		tm := &list[k]
+		e := tm.e
+		F := nt[k] * dp[tm.d] * ee[e]
+		d := float64(tm.d)
+		g := d + s1[e]
+		rd += F * g
+		rdd += F * (g*g - d - e2[e])
+	}
+	RT := m.R * tc.T
+	return D * RT * (1 + rd), RT * (1 + 2*rd + rdd)
+}
+
+const ln2 = math.Ln2
+
+// ideal returns the ideal-gas part a0 = alpha0 and its reduced temperature
+// derivatives a0t = tau a0_tau and a0tt = tau^2 a0_tautau at T in K and
+// molar density D in mol/dm3 (NIST's working form, see component).
+func (m *Mixture) ideal(T, D float64) (a0, a0t, a0tt float64) {
+	lnD := math.Log(D)
+	lnT := math.Log(T)
+	for i := range m.ig {
+		c := &m.ig[i]
+		var h0, h1, h2 float64
+		for k := 0; k < 4; k++ {
+			if c.th[k] <= 0 || c.nh[k] == 0 {
+				continue
+			}
+			u := c.th[k] / T
+			em2 := math.Exp(-2 * u)
+			if k%2 == 0 {
+				// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for large u.
+				h0 += c.nh[k] * (u + math.Log1p(-em2) - ln2)
+				h1 += c.nh[k] * u * (1 + em2) / (1 - em2)
+				r := 2 * u * math.Exp(-u) / (1 - em2)
+				h2 += c.nh[k] * r * r
+			} else {
+				// -ln cosh u, -u tanh u, (u/cosh u)^2.
+				h0 -= c.nh[k] * (u + math.Log1p(em2) - ln2)
+				h1 -= c.nh[k] * u * (1 - em2) / (1 + em2)
+				r := 2 * u * math.Exp(-u) / (1 + em2)
+				h2 += c.nh[k] * r * r
+			}
+		}
+		a0 += c.x * (lnD + c.lnx + c.N1 + c.N2/T - c.N3*lnT + h0)
+		a0t += c.x * (c.N3 + c.N2/T + h1)
+		a0tt -= c.x * (c.N3 + h2)
+	}
+	return a0, a0t, a0tt
+}
+
+// Properties is the full GERG-2008 output at one state in molar SI units
+// (per mole of mixture). U, H, S, G follow GERG-2008's ideal-gas reference
+// state: h = 0 at 298.15 K and s = 0 at 298.15 K, 101.325 kPa for the ideal gas.
+type Properties struct {
+	T      float64 // temperature, K
+	P      float64 // pressure, Pa
+	D      float64 // molar density, mol/m3
+	Z      float64 // compressibility factor p/(D R T)
+	DPDD   float64 // (dp/dD)_T, Pa/(mol/m3) = J/mol
+	D2PDD2 float64 // (d2p/dD2)_T, Pa/(mol/m3)^2
+	DPDT   float64 // (dp/dT)_D, Pa/K
+	U      float64 // molar internal energy, J/mol
+	H      float64 // molar enthalpy, J/mol
+	S      float64 // molar entropy, J/(mol K)
+	G      float64 // molar Gibbs energy, J/mol
+	Cv     float64 // molar isochoric heat capacity, J/(mol K)
+	Cp     float64 // molar isobaric heat capacity, J/(mol K)
+	W      float64 // speed of sound, m/s
+	JT     float64 // Joule-Thomson coefficient, K/Pa
+	Kappa  float64 // isentropic exponent w^2 M/(Z R T), dimensionless
+	M      float64 // molar mass, kg/mol
+}
+
+// props evaluates every property at T (in tc) and D mol/dm3, following
+// NIST's PropertiesGERG (GERG2008.cpp) in its units, then converts to SI.
+func (m *Mixture) props(tc *tauCache, D float64) Properties {
+	T := tc.T
+	r := m.residual(tc, D/m.Dr)
+	a0, a0t, a0tt := m.ideal(T, D)
+	R := m.R
+	RT := R * T
+	Z := 1 + r.d
+	P := D * RT * Z                             // kPa
+	dPdD := RT * (1 + 2*r.d + r.dd)             // kPa/(mol/dm3) = J/mol
+	dPdT := D * R * (1 + r.d - r.dt)            // kPa/K
+	d2PdD2 := RT * (2*r.d + 4*r.dd + r.ddd) / D // kPa/(mol/dm3)^2
+	cv := -R * (a0tt + r.tt)
+	cp := cv + T*(dPdT/D)*(dPdT/D)/dPdD
+	w2 := 1000 * cp / cv * dPdD / m.mg
+	return Properties{
+		T:      T,
+		P:      1000 * P,
+		D:      1000 * D,
+		Z:      Z,
+		DPDD:   dPdD,
+		D2PDD2: d2PdD2 / 1000,
+		DPDT:   1000 * dPdT,
+		U:      RT * (a0t + r.t),
+		H:      RT * (1 + r.d + a0t + r.t),
+		S:      R * (a0t + r.t - a0 - r.a),
+		G:      RT * (1 + r.d + a0 + r.a),
+		Cv:     cv,
+		Cp:     cp,
+		W:      math.Sqrt(w2),
+		JT:     (T/D*dPdT/dPdD - 1) / cp / D / 1000,
+		Kappa:  w2 * m.mg / (RT * 1000 * Z),
+		M:      m.mg / 1000,
+	}
+}
