@@ -1,0 +1,481 @@
+package helmholtz
+
+import (
+	"fmt"
+	"math"
+)
+
+// Fixed capacities of the per-temperature work arrays. They live on the
+// stack, so an evaluation allocates nothing. New rejects a fluid that needs
+// more.
+const (
+	maxPower = 64 // power (polynomial and exponential) residual terms
+	maxGauss = 16 // Gaussian residual terms
+	maxAssoc = 4  // Gao et al. (2023) association terms
+	maxNA    = 4  // non-analytic terms (IAPWS-95, Span-Wagner)
+	maxDexp  = 16 // largest integer delta exponent d in power terms
+	maxLexp  = 8  // largest integer l in exp(-delta^l)
+	maxUniqT = 64 // distinct tau exponents of the power terms
+)
+
+// eos holds one multiparameter equation in flat coefficient arrays, the
+// terms of testdata/reference/eos/NOTES.md section 5:
+//
+//	alpha_r = sum power:    n delta^d tau^t exp(-delta^l)            (l = 0: no exponential)
+//	        + sum gaussian: n delta^d tau^t exp(-eta (delta-eps)^2 - beta (tau-gamma)^2)
+//	        + sum assoc:    n delta^d tau^t exp(eta (delta-eps)^2 + 1/(beta (tau-gamma)^2 + b))
+//	        + sum nonanalytic: n Delta^b delta psi
+//	alpha_0 = ln delta + a1 + a2 tau + c ln tau + sum n tau^t
+//	        + sum n ln(1 - exp(-theta tau)) + sum n ln(c + d exp(theta tau))
+type eos struct {
+	// power terms
+	pN   []float64
+	pD   []int
+	pT   []float64
+	pL   []int
+	pTi  []int // index of pT[k] in uniqT
+	uniq []float64
+	lUse [maxLexp + 1]bool
+	maxD int
+
+	// gaussian terms
+	gN, gD, gT, gEta, gEps, gBeta, gGam []float64
+	gDi                                 []int
+
+	// association terms (Gao et al. 2023)
+	aN, aD, aT, aEta, aEps, aBeta, aGam, aB []float64
+	aDi                                     []int
+
+	// non-analytic terms
+	nN, nA, nB, nBeta, nACap, nBCap, nC, nD []float64
+
+	// ideal part
+	i1, i2   float64   // lead a1 + a2 tau (CoolProp offset included when kept)
+	iLog     float64   // c ln tau
+	ipN, ipT []float64 // sum n tau^t
+	peN, peT []float64 // sum n ln(1 - exp(-theta tau))
+	pgN, pgT []float64 // sum n ln(c + d exp(theta tau))
+	pgC, pgD []float64
+}
+
+// resid is the residual Helmholtz energy and its derivatives, scaled:
+// A = alpha_r, D = delta ar_d, DD = delta^2 ar_dd, T = tau ar_t,
+// TT = tau^2 ar_tt, DT = delta tau ar_dt.
+type resid struct {
+	A, D, DD, T, TT, DT float64
+}
+
+// ideal is the ideal-gas part, scaled like resid (alpha_0 depends on delta
+// only through ln delta: delta a0_d = 1, delta^2 a0_dd = -1, a0_dt = 0).
+type ideal struct {
+	A, T, TT float64
+}
+
+// tauPart caches everything of alpha_r that depends on tau only; a density
+// iteration at fixed T reuses it. Value type, stack allocated.
+type tauPart struct {
+	tau  float64
+	pw   [maxPower]float64 // n tau^t
+	gw   [maxGauss]float64 // n tau^t exp(-beta (tau-gamma)^2)
+	gt   [maxGauss]float64 // tau d/dtau ln(term)
+	gtt  [maxGauss]float64 // tau^2 F_tt / F
+	aw   [maxAssoc]float64 // n tau^t exp(1/u)
+	at   [maxAssoc]float64
+	att  [maxAssoc]float64
+	hasN bool
+}
+
+func toInts(name string, v []float64, max int) ([]int, error) {
+	out := make([]int, len(v))
+	for i, x := range v {
+		if x != math.Trunc(x) || x < 0 || x > float64(max) {
+			return nil, fmt.Errorf("%s exponent %g is not an integer in 0..%d", name, x, max)
+		}
+		out[i] = int(x)
+	}
+	return out, nil
+}
+
+func sameLen(typ string, n int, arrays ...[]float64) error {
+	for _, a := range arrays {
+		if len(a) != n {
+			return fmt.Errorf("%s term arrays differ in length", typ)
+		}
+	}
+	return nil
+}
+
+// buildEOS converts the JSON term lists into flat arrays. dropOffset leaves
+// out CoolProp's enthalpy_entropy_offset term (published reference state).
+func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
+	q := &eos{}
+	for _, t := range e.Alphar {
+		n := len(t.N)
+		switch t.Type {
+		case "power":
+			if err := sameLen(t.Type, n, t.D, t.T, t.L); err != nil {
+				return nil, err
+			}
+			d, err := toInts("power d", t.D, maxDexp)
+			if err != nil {
+				return nil, err
+			}
+			l, err := toInts("power l", t.L, maxLexp)
+			if err != nil {
+				return nil, err
+			}
+			q.pN = append(q.pN, t.N...)
+			q.pD = append(q.pD, d...)
+			q.pT = append(q.pT, t.T...)
+			q.pL = append(q.pL, l...)
+		case "gaussian":
+			if err := sameLen(t.Type, n, t.D, t.T, t.Eta, t.Epsilon, t.Beta, t.Gamma); err != nil {
+				return nil, err
+			}
+			d, err := toInts("gaussian d", t.D, maxDexp)
+			if err != nil {
+				return nil, err
+			}
+			q.gN = append(q.gN, t.N...)
+			q.gD = append(q.gD, t.D...)
+			q.gDi = append(q.gDi, d...)
+			q.gT = append(q.gT, t.T...)
+			q.gEta = append(q.gEta, t.Eta...)
+			q.gEps = append(q.gEps, t.Epsilon...)
+			q.gBeta = append(q.gBeta, t.Beta...)
+			q.gGam = append(q.gGam, t.Gamma...)
+		case "gao_association":
+			if err := sameLen(t.Type, n, t.D, t.T, t.Eta, t.Epsilon, t.Beta, t.Gamma, t.Bsmall); err != nil {
+				return nil, err
+			}
+			d, err := toInts("association d", t.D, maxDexp)
+			if err != nil {
+				return nil, err
+			}
+			q.aN = append(q.aN, t.N...)
+			q.aD = append(q.aD, t.D...)
+			q.aDi = append(q.aDi, d...)
+			q.aT = append(q.aT, t.T...)
+			q.aEta = append(q.aEta, t.Eta...)
+			q.aEps = append(q.aEps, t.Epsilon...)
+			q.aBeta = append(q.aBeta, t.Beta...)
+			q.aGam = append(q.aGam, t.Gamma...)
+			q.aB = append(q.aB, t.Bsmall...)
+		case "nonanalytic":
+			if err := sameLen(t.Type, n, t.Asmall, t.Bsmall, t.Beta, t.ACap, t.BCap, t.CCap, t.DCap); err != nil {
+				return nil, err
+			}
+			q.nN = append(q.nN, t.N...)
+			q.nA = append(q.nA, t.Asmall...)
+			q.nB = append(q.nB, t.Bsmall...)
+			q.nBeta = append(q.nBeta, t.Beta...)
+			q.nACap = append(q.nACap, t.ACap...)
+			q.nBCap = append(q.nBCap, t.BCap...)
+			q.nC = append(q.nC, t.CCap...)
+			q.nD = append(q.nD, t.DCap...)
+		default:
+			return nil, fmt.Errorf("unknown residual term type %q", t.Type)
+		}
+	}
+	if len(q.pN) > maxPower || len(q.gN) > maxGauss || len(q.aN) > maxAssoc || len(q.nN) > maxNA {
+		return nil, fmt.Errorf("too many terms for the fixed work arrays")
+	}
+	for k, t := range q.pT {
+		idx := -1
+		for j, u := range q.uniq {
+			if u == t {
+				idx = j
+				break
+			}
+		}
+		if idx < 0 {
+			q.uniq = append(q.uniq, t)
+			idx = len(q.uniq) - 1
+		}
+		q.pTi = append(q.pTi, idx)
+		q.lUse[q.pL[k]] = true
+		if q.pD[k] > q.maxD {
+			q.maxD = q.pD[k]
+		}
+	}
+	for _, d := range q.gDi {
+		q.maxD = max(q.maxD, d)
+	}
+	for _, d := range q.aDi {
+		q.maxD = max(q.maxD, d)
+	}
+	if len(q.uniq) > maxUniqT {
+		return nil, fmt.Errorf("too many distinct tau exponents")
+	}
+	for _, t := range e.Alpha0 {
+		switch t.Type {
+		case "lead":
+			q.i1 += t.A1
+			q.i2 += t.A2
+		case "enthalpy_entropy_offset":
+			if !dropOffset {
+				q.i1 += t.A1
+				q.i2 += t.A2
+			}
+		case "log_tau":
+			q.iLog += t.A
+		case "power":
+			if err := sameLen(t.Type, len(t.N), t.T); err != nil {
+				return nil, err
+			}
+			q.ipN = append(q.ipN, t.N...)
+			q.ipT = append(q.ipT, t.T...)
+		case "planck_einstein":
+			if err := sameLen(t.Type, len(t.N), t.Theta); err != nil {
+				return nil, err
+			}
+			q.peN = append(q.peN, t.N...)
+			q.peT = append(q.peT, t.Theta...)
+		case "planck_einstein_generalized":
+			if err := sameLen(t.Type, len(t.N), t.Theta, t.C, t.D); err != nil {
+				return nil, err
+			}
+			q.pgN = append(q.pgN, t.N...)
+			q.pgT = append(q.pgT, t.Theta...)
+			q.pgC = append(q.pgC, t.C...)
+			q.pgD = append(q.pgD, t.D...)
+		default:
+			return nil, fmt.Errorf("unknown ideal-gas term type %q", t.Type)
+		}
+	}
+	return q, nil
+}
+
+// powi returns x^n for a small non-negative integer n without math.Pow.
+func powi(x float64, n int) float64 {
+	r := 1.0
+	for n > 0 {
+		if n&1 == 1 {
+			r *= x
+		}
+		x *= x
+		n >>= 1
+	}
+	return r
+}
+
+// tauPart fills the tau-only factors of the residual terms.
+func (q *eos) tauPart(tau float64, tp *tauPart) {
+	tp.tau = tau
+	lnTau := math.Log(tau)
+	var ut [maxUniqT]float64
+	for j, t := range q.uniq {
+		switch t {
+		case 0:
+			ut[j] = 1
+		case 1:
+			ut[j] = tau
+		default:
+			ut[j] = math.Exp(t * lnTau)
+		}
+	}
+	for k, n := range q.pN {
+		tp.pw[k] = n * ut[q.pTi[k]]
+	}
+	for k, n := range q.gN {
+		t, b, g := q.gT[k], q.gBeta[k], q.gGam[k]
+		dt := tau - g
+		tp.gw[k] = n * math.Exp(t*lnTau-b*dt*dt)
+		gt := t - 2*b*tau*dt
+		tp.gt[k] = gt
+		tp.gtt[k] = gt*gt - t - 2*b*tau*tau
+	}
+	for k, n := range q.aN {
+		t, b, g, bb := q.aT[k], q.aBeta[k], q.aGam[k], q.aB[k]
+		dt := tau - g
+		u := b*dt*dt + bb
+		tp.aw[k] = n * math.Exp(t*lnTau+1/u)
+		ht := t - 2*b*tau*dt/(u*u)
+		htp := -2 * b * ((2*tau-g)*u - 4*b*tau*dt*dt) / (u * u * u)
+		tp.at[k] = ht
+		tp.att[k] = ht*ht - ht + tau*htp
+	}
+	tp.hasN = len(q.nN) > 0
+}
+
+// residual evaluates alpha_r and its scaled derivatives at delta using the
+// tau factors in tp. When full is false only A, D and DD are computed (all a
+// density iteration or the Maxwell construction needs).
+func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
+	var r resid
+	var dp [maxDexp + 1]float64
+	dp[0] = 1
+	for i := 1; i <= q.maxD; i++ {
+		dp[i] = dp[i-1] * delta
+	}
+	var el, dl [maxLexp + 1]float64 // exp(-delta^l), delta^l
+	el[0] = 1
+	for l := 1; l <= maxLexp; l++ {
+		if q.lUse[l] {
+			var x float64
+			if l <= q.maxD {
+				x = dp[l]
+			} else {
+				x = powi(delta, l)
+			}
+			dl[l] = x
+			el[l] = math.Exp(-x)
+		}
+	}
+	for k := range q.pN {
+		d, l := q.pD[k], q.pL[k]
+		F := tp.pw[k] * dp[d] * el[l]
+		g := float64(d)
+		ll := 0.0
+		if l > 0 {
+			fl := float64(l)
+			g -= fl * dl[l]
+			ll = fl * fl * dl[l]
+		}
+		r.A += F
+		Fg := F * g
+		r.D += Fg
+		r.DD += F * (g*(g-1) - ll)
+		if full {
+			t := q.pT[k]
+			r.T += F * t
+			r.TT += F * t * (t - 1)
+			r.DT += Fg * t
+		}
+	}
+	for k := range q.gN {
+		eta, eps := q.gEta[k], q.gEps[k]
+		de := delta - eps
+		F := tp.gw[k] * dp[q.gDi[k]] * math.Exp(-eta*de*de)
+		gd := q.gD[k] - 2*eta*delta*de
+		r.A += F
+		r.D += F * gd
+		r.DD += F * (gd*gd - q.gD[k] - 2*eta*delta*delta)
+		if full {
+			r.T += F * tp.gt[k]
+			r.TT += F * tp.gtt[k]
+			r.DT += F * gd * tp.gt[k]
+		}
+	}
+	for k := range q.aN {
+		eta, eps := q.aEta[k], q.aEps[k]
+		de := delta - eps
+		F := tp.aw[k] * dp[q.aDi[k]] * math.Exp(eta*de*de)
+		gd := q.aD[k] + 2*eta*delta*de
+		r.A += F
+		r.D += F * gd
+		r.DD += F * (gd*gd - q.aD[k] + 2*eta*delta*delta)
+		if full {
+			r.T += F * tp.at[k]
+			r.TT += F * tp.att[k]
+			r.DT += F * gd * tp.at[k]
+		}
+	}
+	if tp.hasN {
+		q.nonAnalytic(tp.tau, delta, &r)
+	}
+	return r
+}
+
+// nonAnalytic adds the non-analytic critical-region terms (IAPWS-95 terms
+// 55-56, Span-Wagner terms 40-42); formulas of NOTES.md section 5, arranged
+// so that no power of q = (delta-1)^2 with a negative exponent appears. The
+// terms are singular at delta = tau = 1; there delta is moved by 1e-9.
+func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
+	dm := delta - 1
+	if math.Abs(dm) < 1e-9 && math.Abs(tau-1) < 1e-9 {
+		dm = 1e-9
+		delta = 1 + dm
+	}
+	qq := dm * dm
+	tm := tau - 1
+	for k, n := range q.nN {
+		a, b, beta, A, B, C, D := q.nA[k], q.nB[k], q.nBeta[k], q.nACap[k], q.nBCap[k], q.nC[k], q.nD[k]
+		ib := 1 / (2 * beta)
+		var qib1, qa1, qib float64 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
+		if qq > 0 {
+			qib1 = math.Pow(qq, ib-1)
+			qa1 = math.Pow(qq, a-1)
+			qib = qib1 * qq
+		}
+		theta := -tm + A*qib
+		Delta := theta*theta + B*qa1*qq
+		psi := math.Exp(-C*qq - D*tm*tm)
+		// Delta derivatives with respect to delta.
+		dOver := A*theta*(2/beta)*qib1 + 2*B*a*qa1 // Delta_d/(delta-1)
+		Dd := dm * dOver
+		Ddd := dOver + 4*B*a*(a-1)*qa1 + 2*A*A/(beta*beta)*qib1*qib1*qq + A*theta*(4/beta)*(ib-1)*qib1
+		var Db, Db1, Db2 float64 // Delta^b, Delta^(b-1), Delta^(b-2)
+		if Delta > 0 {
+			Db = math.Pow(Delta, b)
+			Db1 = Db / Delta
+			Db2 = Db1 / Delta
+		}
+		Dbd := b * Db1 * Dd
+		Dbdd := b * (Db1*Ddd + (b-1)*Db2*Dd*Dd)
+		Dbt := -2 * theta * b * Db1
+		Dbtt := 2*b*Db1 + 4*theta*theta*b*(b-1)*Db2
+		Dbdt := -A*b*(2/beta)*Db1*dm*qib1 - 2*theta*b*(b-1)*Db2*Dd
+		psid := -2 * C * dm * psi
+		psidd := (2*C*qq - 1) * 2 * C * psi
+		psit := -2 * D * tm * psi
+		pstt := (2*D*tm*tm - 1) * 2 * D * psi
+		psidt := 4 * C * D * dm * tm * psi
+
+		F := n * Db * delta * psi
+		Fd := n * (Db*(psi+delta*psid) + Dbd*delta*psi)
+		Fdd := n * (Db*(2*psid+delta*psidd) + 2*Dbd*(psi+delta*psid) + Dbdd*delta*psi)
+		Ft := n * delta * (Dbt*psi + Db*psit)
+		Ftt := n * delta * (Dbtt*psi + 2*Dbt*psit + Db*pstt)
+		Fdt := n * (Db*(psit+delta*psidt) + delta*Dbd*psit + Dbt*(psi+delta*psid) + Dbdt*delta*psi)
+		r.A += F
+		r.D += delta * Fd
+		r.DD += delta * delta * Fdd
+		r.T += tau * Ft
+		r.TT += tau * tau * Ftt
+		r.DT += delta * tau * Fdt
+	}
+}
+
+// ideal evaluates alpha_0 without its ln delta term, and the scaled tau
+// derivatives.
+func (q *eos) ideal(tau float64) ideal {
+	lnTau := math.Log(tau)
+	var o ideal
+	o.A = q.i1 + q.i2*tau + q.iLog*lnTau
+	o.T = q.i2*tau + q.iLog
+	o.TT = -q.iLog
+	for k, n := range q.ipN {
+		t := q.ipT[k]
+		var v float64
+		switch t {
+		case 0:
+			v = n
+		case 1:
+			v = n * tau
+		default:
+			v = n * math.Exp(t*lnTau)
+		}
+		o.A += v
+		o.T += t * v
+		o.TT += t * (t - 1) * v
+	}
+	for k, n := range q.peN {
+		x := q.peT[k] * tau
+		e := math.Exp(-x) // exp(-theta tau)
+		o.A += n * math.Log1p(-e)
+		em := -math.Expm1(-x) // 1 - exp(-x)
+		o.T += n * x * e / em
+		o.TT -= n * x * x * e / (em * em)
+	}
+	for k, n := range q.pgN {
+		x := q.pgT[k] * tau
+		c, d := q.pgC[k], q.pgD[k]
+		e := math.Exp(x)
+		den := c + d*e
+		o.A += n * math.Log(den)
+		o.T += n * x * d * e / den
+		o.TT += n * x * x * c * d * e / (den * den)
+	}
+	return o
+}

@@ -1,0 +1,368 @@
+package helmholtz
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+var (
+	_ thermo.Fluid      = (*Fluid)(nil)
+	_ thermo.Saturation = (*Fluid)(nil)
+	_ thermo.Critical   = (*Fluid)(nil)
+)
+
+// Flash returns the state fixed by (a, b). Supported pairs: PT, PH, PS, PX,
+// TX. HS returns an error wrapping thermo.ErrUnsupported. Pseudo-pure air
+// has no two-phase model: PX, TX and states between its dew and bubble
+// lines return errors wrapping ErrUnsupported or ErrPhase.
+func (f *Fluid) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
+	names := pairArgNames(pair)
+	if err := thermo.CheckFinite(f.name, names[:], a, b); err != nil {
+		return thermo.State{}, err
+	}
+	var (
+		s   thermo.State
+		err error
+	)
+	switch pair {
+	case thermo.PT:
+		s, err = f.flashPT(a, b)
+	case thermo.PH:
+		s, err = f.flashPY(a, b, true)
+	case thermo.PS:
+		s, err = f.flashPY(a, b, false)
+	case thermo.PX:
+		s, err = f.flashPX(a, b)
+	case thermo.TX:
+		s, err = f.flashTX(a, b)
+	default:
+		return thermo.State{}, fmt.Errorf("%s: input pair %v: %w", f.name, pair, thermo.ErrUnsupported)
+	}
+	if err != nil {
+		return thermo.State{}, err
+	}
+	if !s.Finite() {
+		return thermo.State{}, fmt.Errorf("%s: %v flash (%g, %g) produced a non-finite property: %w", f.name, pair, a, b, thermo.ErrNoConvergence)
+	}
+	return s, nil
+}
+
+func pairArgNames(p thermo.Pair) [2]string {
+	switch p {
+	case thermo.PT:
+		return [2]string{"p", "T"}
+	case thermo.PH:
+		return [2]string{"p", "h"}
+	case thermo.PS:
+		return [2]string{"p", "s"}
+	case thermo.PX:
+		return [2]string{"p", "x"}
+	case thermo.TX:
+		return [2]string{"T", "x"}
+	case thermo.HS:
+		return [2]string{"h", "s"}
+	}
+	return [2]string{"a", "b"}
+}
+
+// classify decides the phase at (T, p). Below the critical temperature the
+// ancillary saturation pressure decides when p is clearly away from it;
+// inside the band f.ancMargin, and above 0.99 Tc, the Maxwell solution does
+// and is returned for bracketing the density.
+func (f *Fluid) classify(T, p float64) (thermo.Phase, *satPoint, error) {
+	if T >= f.tc {
+		if p >= f.pc {
+			return thermo.PhaseSupercritical, nil, nil
+		}
+		return thermo.PhaseVapour, nil, nil
+	}
+	if f.pseudoPure {
+		if T >= f.ancPL.tr || p >= f.pc {
+			return thermo.PhaseLiquid, nil, nil
+		}
+		pb, pd := f.ancPL.eval(T), f.ancPV.eval(T)
+		switch {
+		case p >= pb:
+			return thermo.PhaseLiquid, nil, nil
+		case p <= pd:
+			return thermo.PhaseVapour, nil, nil
+		}
+		return 0, nil, fmt.Errorf("%s: p = %g Pa at T = %g K lies between the dew (%g Pa) and bubble (%g Pa) pressures; two-phase air is not modelled: %w", f.name, p, T, pd, pb, thermo.ErrPhase)
+	}
+	if p >= f.pc {
+		return thermo.PhaseLiquid, nil, nil
+	}
+	if T < 0.99*f.tc {
+		pa := f.ancP.eval(T)
+		if p > pa*(1+f.ancMargin) {
+			return thermo.PhaseLiquid, nil, nil
+		}
+		if p < pa*(1-f.ancMargin) {
+			return thermo.PhaseVapour, nil, nil
+		}
+	}
+	sp, err := f.maxwell(T, 0, 0)
+	if err != nil {
+		return 0, nil, err
+	}
+	switch {
+	case p > sp.p:
+		return thermo.PhaseLiquid, &sp, nil
+	case p < sp.p:
+		return thermo.PhaseVapour, &sp, nil
+	}
+	return 0, nil, fmt.Errorf("%s: p = %g Pa is the saturation pressure at T = %g K; (p,T) does not fix the state, use PX or TX: %w", f.name, p, T, thermo.ErrPhase)
+}
+
+func (f *Fluid) flashPT(p, T float64) (thermo.State, error) {
+	if err := f.checkP(p); err != nil {
+		return thermo.State{}, err
+	}
+	if err := f.checkT(T); err != nil {
+		return thermo.State{}, err
+	}
+	ph, sp, err := f.classify(T, p)
+	if err != nil {
+		return thermo.State{}, err
+	}
+	return f.statePT(p, T, ph, sp, 0)
+}
+
+// statePT solves the density on the given branch and evaluates the state.
+func (f *Fluid) statePT(p, T float64, ph thermo.Phase, sp *satPoint, guess float64) (thermo.State, error) {
+	var tp tauPart
+	f.q.tauPart(f.tr/T, &tp)
+	rho, err := f.density(&tp, T, p, ph, sp, guess)
+	if err != nil {
+		return thermo.State{}, err
+	}
+	s, _ := f.props(&tp, T, rho)
+	s.P = p
+	s.Phase = ph
+	return s, nil
+}
+
+// mix returns the two-phase state of quality x on the saturation line sp.
+func (f *Fluid) mix(sp satPoint, x float64) thermo.State {
+	l, v := f.satStates(sp)
+	var s thermo.State
+	s.P = sp.p
+	s.T = sp.T
+	s.V = l.V + x*(v.V-l.V)
+	s.Rho = 1 / s.V
+	s.U = l.U + x*(v.U-l.U)
+	s.H = l.H + x*(v.H-l.H)
+	s.S = l.S + x*(v.S-l.S)
+	s.X = x
+	s.Phase = thermo.PhaseTwoPhase
+	return s
+}
+
+func (f *Fluid) checkX(x float64) error {
+	if x < 0 {
+		return thermo.Below(f.name, "x", "1", x, 0, "vapour mass fraction")
+	}
+	if x > 1 {
+		return thermo.Above(f.name, "x", "1", x, 1, "vapour mass fraction")
+	}
+	return nil
+}
+
+func (f *Fluid) flashTX(T, x float64) (thermo.State, error) {
+	if err := f.checkX(x); err != nil {
+		return thermo.State{}, err
+	}
+	sp, err := f.maxwell(T, 0, 0)
+	if err != nil {
+		return thermo.State{}, err
+	}
+	return f.mix(sp, x), nil
+}
+
+func (f *Fluid) flashPX(p, x float64) (thermo.State, error) {
+	if err := f.checkX(x); err != nil {
+		return thermo.State{}, err
+	}
+	sp, err := f.satAtP(p)
+	if err != nil {
+		return thermo.State{}, err
+	}
+	return f.mix(sp, x), nil
+}
+
+// flashPY solves (p, h) (isH) or (p, s): two-phase detection with the
+// saturation state at p, then Newton on T with the density re-solved on the
+// known branch at each step, safeguarded by bisection.
+func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
+	if err := f.checkP(p); err != nil {
+		return thermo.State{}, err
+	}
+	lo, hi := f.tmin, f.tmax
+	branch := thermo.PhaseUnknown // decided per T by classify
+	var sat *thermo.State
+	if !f.pseudoPure && p < f.pc && p >= f.satTriple.p {
+		sp, err := f.satAtP(p)
+		if err != nil {
+			return thermo.State{}, err
+		}
+		l, v := f.satStates(sp)
+		yl, yv := l.S, v.S
+		if isH {
+			yl, yv = l.H, v.H
+		}
+		switch {
+		case y >= yl && y <= yv:
+			return f.mix(sp, (y-yl)/(yv-yl)), nil
+		case y < yl:
+			hi, branch = sp.T, thermo.PhaseLiquid
+			sat = &l
+		default:
+			lo, branch = sp.T, thermo.PhaseVapour
+			sat = &v
+		}
+	} else if !f.pseudoPure && p >= f.pc {
+		branch = thermo.PhaseSupercritical // phase set per T below
+	}
+	return f.solveT(p, y, isH, lo, hi, branch, sat)
+}
+
+// solveT is the one-dimensional Newton iteration on T at fixed p.
+func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Phase, edge *thermo.State) (thermo.State, error) {
+	value := func(s *thermo.State) (v, d float64) {
+		if isH {
+			return s.H, s.Cp
+		}
+		return s.S, s.Cp / s.T
+	}
+	state := func(T, guess float64) (thermo.State, error) {
+		switch branch {
+		case thermo.PhaseLiquid, thermo.PhaseVapour:
+			ph := branch
+			if ph == thermo.PhaseVapour && T >= f.tc {
+				ph = thermo.PhaseVapour
+			}
+			return f.statePT(p, T, ph, nil, guess)
+		case thermo.PhaseSupercritical:
+			ph := thermo.PhaseSupercritical
+			if T < f.tc {
+				ph = thermo.PhaseLiquid
+			}
+			return f.statePT(p, T, ph, nil, guess)
+		}
+		return f.flashPT(p, T)
+	}
+	// Starting temperature.
+	var T float64
+	if edge != nil {
+		v, d := value(edge)
+		T = edge.T + (y-v)/d
+		if !isH {
+			T = edge.T * math.Exp((y-v)*edge.T/(edge.Cp))
+		}
+	} else {
+		// Ideal-gas-like guess around 1.2 Tc, corrected by Newton.
+		T = min(max(1.2*f.tc, lo), hi)
+	}
+	if !(T > lo && T < hi) {
+		T = 0.5 * (lo + hi)
+	}
+	loKnown, hiKnown := edge != nil && branch == thermo.PhaseVapour, edge != nil && branch == thermo.PhaseLiquid
+	guess := 0.0
+	prevRho := 0.0
+	var last thermo.State
+	for it := 0; it < 100; it++ {
+		s, err := state(T, guess)
+		if err != nil {
+			if errors.Is(err, thermo.ErrPhase) && branch == thermo.PhaseUnknown {
+				return thermo.State{}, err
+			}
+			return thermo.State{}, err
+		}
+		last = s
+		v, d := value(&s)
+		fx := v - y
+		scale := d * T // y change for dT = T
+		if math.Abs(fx) <= 1e-12*scale {
+			return s, nil
+		}
+		if fx > 0 {
+			hi, hiKnown = T, true
+		} else {
+			lo, loKnown = T, true
+		}
+		Tn := T - fx/d
+		if !(d > 0) || math.IsNaN(Tn) {
+			Tn = math.NaN()
+		}
+		switch {
+		case !(Tn > lo):
+			if !loKnown {
+				Tn = lo
+			} else {
+				Tn = 0.5 * (lo + hi)
+			}
+		case !(Tn < hi):
+			if !hiKnown {
+				Tn = hi
+			} else {
+				Tn = 0.5 * (lo + hi)
+			}
+		}
+		if Tn == T {
+			// At an unevaluated bound already: the target lies outside.
+			return thermo.State{}, f.outside(isH, y, s, fx)
+		}
+		if (Tn == lo && !loKnown) || (Tn == hi && !hiKnown) {
+			// Evaluate the bound; if the target is beyond it, report range.
+			sb, err := state(Tn, 0)
+			if err != nil {
+				return thermo.State{}, err
+			}
+			vb, _ := value(&sb)
+			if (Tn == lo && vb > y) || (Tn == hi && vb < y) {
+				return thermo.State{}, f.outside(isH, y, sb, vb-y)
+			}
+			if Tn == lo {
+				loKnown = true
+			} else {
+				hiKnown = true
+			}
+			Tn = 0.5 * (lo + hi)
+			if vb > y {
+				hi = sb.T
+			} else {
+				lo = sb.T
+			}
+			Tn = 0.5 * (lo + hi)
+		}
+		if math.Abs(Tn-T) <= 1e-14*T && math.Abs(fx) <= 1e-9*scale {
+			return s, nil
+		}
+		prevRho = s.Rho
+		guess = prevRho
+		T = Tn
+	}
+	_ = last
+	q := "s"
+	if isH {
+		q = "h"
+	}
+	return thermo.State{}, fmt.Errorf("%s: (p,%s) flash at p = %g Pa, %s = %g did not converge: %w", f.name, q, p, q, y, thermo.ErrNoConvergence)
+}
+
+// outside builds the range error for an h or s beyond the state sb at a
+// temperature limit (fx = value - target there).
+func (f *Fluid) outside(isH bool, y float64, sb thermo.State, fx float64) error {
+	q, unit, lim := "s", "J/(kg K)", sb.S
+	if isH {
+		q, unit, lim = "h", "J/kg", sb.H
+	}
+	ctx := fmt.Sprintf("value at T = %g K and p = %g Pa", sb.T, sb.P)
+	if fx > 0 {
+		return thermo.Below(f.name, q, unit, y, lim, ctx)
+	}
+	return thermo.Above(f.name, q, unit, y, lim, ctx)
+}

@@ -1,0 +1,257 @@
+package helmholtz
+
+import (
+	"fmt"
+	"math"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+// props computes the single-phase state at (T, rho) from the tau cache.
+// Formulas of testdata/reference/eos/NOTES.md section 5.
+func (f *Fluid) props(tp *tauPart, T, rho float64) (thermo.State, resid) {
+	delta := rho / f.rhor
+	tau := tp.tau
+	r := f.q.residual(tp, delta, true)
+	i := f.q.ideal(tau)
+	R := f.r
+	RT := R * T
+	var s thermo.State
+	s.T = T
+	s.Rho = rho
+	s.V = 1 / rho
+	s.P = rho * RT * (1 + r.D)
+	tt := i.T + r.T // tau (a0_t + ar_t)
+	s.U = RT * tt
+	s.H = RT * (tt + 1 + r.D)
+	s.S = R * (tt - i.A - math.Log(delta) - r.A)
+	cvR := -(i.TT + r.TT)
+	X := 1 + r.D - r.DT
+	Y := 1 + 2*r.D + r.DD
+	s.Cv = R * cvR
+	s.Cp = s.Cv + R*X*X/Y
+	w2 := RT * (Y + X*X/cvR)
+	if w2 > 0 {
+		s.W = math.Sqrt(w2)
+	} else {
+		s.W = math.NaN()
+	}
+	s.HasDerivatives = true
+	return s, r
+}
+
+// StateTRho returns the single-phase state at temperature T (K) and density
+// rho (kg/m3) straight from the equation, with no phase check (Phase is
+// PhaseUnknown; a state inside the two-phase dome is the equation's
+// metastable or unstable continuation). Inputs outside [T_min, T_max] or
+// rho <= 0 are range errors.
+func (f *Fluid) StateTRho(T, rho float64) (thermo.State, error) {
+	if err := thermo.CheckFinite(f.name, []string{"T", "rho"}, T, rho); err != nil {
+		return thermo.State{}, err
+	}
+	if err := f.checkT(T); err != nil {
+		return thermo.State{}, err
+	}
+	if !(rho > 0) {
+		return thermo.State{}, thermo.Below(f.name, "rho", "kg/m3", rho, 0, "density must be positive")
+	}
+	var tp tauPart
+	f.q.tauPart(f.tr/T, &tp)
+	s, _ := f.props(&tp, T, rho)
+	if !s.Finite() {
+		return thermo.State{}, fmt.Errorf("%s: non-finite property at T = %g K, rho = %g kg/m3: %w", f.name, T, rho, thermo.ErrNoConvergence)
+	}
+	return s, nil
+}
+
+func (f *Fluid) checkT(T float64) error {
+	if T < f.tmin {
+		return thermo.Below(f.name, "T", "K", T, f.tmin, "triple-point temperature of the equation")
+	}
+	if T > f.tmax {
+		return thermo.Above(f.name, "T", "K", T, f.tmax, "")
+	}
+	return nil
+}
+
+func (f *Fluid) checkP(p float64) error {
+	if !(p > 0) {
+		return thermo.Below(f.name, "p", "Pa", p, 0, "pressure must be positive")
+	}
+	if p > f.pmax {
+		return thermo.Above(f.name, "p", "Pa", p, f.pmax, "")
+	}
+	return nil
+}
+
+// pOf returns p and dp/drho at (T, rho) using only the delta derivatives.
+func (f *Fluid) pOf(tp *tauPart, T, rho float64) (p, dpdrho float64) {
+	r := f.q.residual(tp, rho/f.rhor, false)
+	RT := f.r * T
+	return rho * RT * (1 + r.D), RT * (1 + 2*r.D + r.DD)
+}
+
+// side selects the branch the density solver looks for.
+type side int
+
+const (
+	sideVapour side = iota // lowest-density stable root
+	sideLiquid             // root above the liquid spinodal
+	sideSuper              // the single root above the critical temperature
+)
+
+// solveRho finds rho with p(T, rho) = p by Newton's method safeguarded with
+// a bracket [lo, hi] (hi = 0: unbounded). A point where dp/drho <= 0 moves
+// the bracket away from the unstable region (down for vapour, up for
+// liquid). Returns an error wrapping ErrNoConvergence if it fails.
+func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64) (float64, error) {
+	if hi > 0 && (rho <= lo || rho >= hi) {
+		rho = 0.5 * (lo + hi)
+	}
+	if rho <= lo {
+		rho = lo*1.01 + 1e-12
+	}
+	for it := 0; it < 200; it++ {
+		pc, dp := f.pOf(tp, T, rho)
+		fx := pc - p
+		if math.IsNaN(fx) || math.IsNaN(dp) {
+			return 0, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa: non-finite pressure: %w", f.name, T, p, thermo.ErrNoConvergence)
+		}
+		if dp <= 0 {
+			// Unstable region.
+			switch sd {
+			case sideVapour:
+				hi = rho
+			case sideLiquid:
+				lo = rho
+			default:
+				// Above Tc p(rho) should be monotonic; treat like a
+				// sign-based bracket update so bisection still works.
+				if fx > 0 {
+					hi = rho
+				} else {
+					lo = rho
+				}
+			}
+		} else if fx > 0 {
+			hi = rho
+		} else {
+			lo = rho
+		}
+		if math.Abs(fx) <= 1e-13*p && dp > 0 {
+			return rho, nil
+		}
+		next := math.NaN()
+		if dp > 0 {
+			next = rho - fx/dp
+		}
+		if !(next > lo) || (hi > 0 && !(next < hi)) {
+			if hi > 0 {
+				next = 0.5 * (lo + hi)
+			} else {
+				next = 2 * rho
+			}
+		}
+		if math.Abs(next-rho) <= 1e-15*rho {
+			// Step below rounding: accept if the residual is small.
+			if math.Abs(fx) <= 1e-9*p && dp > 0 {
+				return rho, nil
+			}
+			if hi > 0 && hi-lo <= 4e-16*hi {
+				break
+			}
+		}
+		rho = next
+		if hi == 0 && rho > 1e7 {
+			break
+		}
+	}
+	return 0, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa did not converge: %w", f.name, T, p, thermo.ErrNoConvergence)
+}
+
+// rhoMaxBracket is an upper density bound used as the high end of the
+// bracket in the liquid and supercritical searches.
+func (f *Fluid) rhoMaxBracket() float64 { return 4 * f.rhoLt }
+
+// density solves p(T, rho) = p on the branch of phase ph (PhaseLiquid,
+// PhaseVapour or PhaseSupercritical) and checks the root: converged,
+// mechanically stable, on the expected side of the critical density and,
+// when sat is given, of the saturated densities; a vapour root must be
+// plausible against the ideal-gas density. guess <= 0 picks a default start.
+func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoint, guess float64) (float64, error) {
+	rhoIG := p / (f.r * T)
+	var rho float64
+	var err error
+	switch {
+	case ph == thermo.PhaseVapour && T < f.tc:
+		hi := f.rhoc
+		if sat != nil {
+			hi = sat.rhoV * (1 + 1e-12)
+		}
+		g := guess
+		if g <= 0 {
+			g = rhoIG
+		}
+		rho, err = f.solveRho(tp, T, p, sideVapour, 0, hi, g)
+		if err != nil {
+			return 0, err
+		}
+		Z := rhoIG / rho
+		if Z < 0.05 || Z > 2 {
+			return 0, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is implausible (Z = %g): %w", f.name, rho, T, p, Z, thermo.ErrPhase)
+		}
+		if rho >= f.rhoc {
+			return 0, fmt.Errorf("%s: vapour root rho = %g kg/m3 above the critical density at T = %g K, p = %g Pa: %w", f.name, rho, T, p, thermo.ErrPhase)
+		}
+		if sat == nil && !f.pseudoPure && T < 0.98*f.tc {
+			if rv := f.ancRV.eval(T); rho > rv*(1+5*f.ancRV.maxErr+0.02) {
+				return 0, fmt.Errorf("%s: vapour root rho = %g kg/m3 exceeds the saturated-vapour density %g at T = %g K: %w", f.name, rho, rv, T, thermo.ErrPhase)
+			}
+		}
+	case ph == thermo.PhaseLiquid:
+		lo := f.rhoc
+		if sat != nil {
+			lo = sat.rhoL * (1 - 1e-12)
+		}
+		g := guess
+		if g <= 0 {
+			if sat != nil {
+				g = sat.rhoL
+			} else if f.ancRL.ok && T < f.ancRL.tr {
+				g = f.ancRL.eval(T)
+			} else {
+				g = 1.5 * f.rhoc
+			}
+		}
+		rho, err = f.solveRho(tp, T, p, sideLiquid, lo, f.rhoMaxBracket(), max(g, lo*1.000001))
+		if err != nil {
+			return 0, err
+		}
+		if rho <= f.rhoc {
+			return 0, fmt.Errorf("%s: liquid root rho = %g kg/m3 below the critical density at T = %g K, p = %g Pa: %w", f.name, rho, T, p, thermo.ErrPhase)
+		}
+		if sat == nil && T < 0.98*f.tc && f.ancRL.ok {
+			if rl := f.ancRL.eval(T); rho < rl*(1-5*f.ancRL.maxErr-0.02) {
+				return 0, fmt.Errorf("%s: liquid root rho = %g kg/m3 below the saturated-liquid density %g at T = %g K: %w", f.name, rho, rl, T, thermo.ErrPhase)
+			}
+		}
+	default:
+		g := guess
+		if g <= 0 {
+			g = min(rhoIG, 2*f.rhoc)
+		}
+		rho, err = f.solveRho(tp, T, p, sideSuper, 0, f.rhoMaxBracket(), g)
+		if err != nil {
+			return 0, err
+		}
+	}
+	// Re-check the root.
+	pc, dp := f.pOf(tp, T, rho)
+	if !(dp > 0) {
+		return 0, fmt.Errorf("%s: root rho = %g kg/m3 at T = %g K is mechanically unstable (dp/drho <= 0): %w", f.name, rho, T, thermo.ErrPhase)
+	}
+	if math.Abs(pc-p) > 1e-9*p {
+		return 0, fmt.Errorf("%s: root rho = %g kg/m3 misses p = %g Pa by %g Pa: %w", f.name, rho, p, pc-p, thermo.ErrNoConvergence)
+	}
+	return rho, nil
+}
