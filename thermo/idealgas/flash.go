@@ -128,8 +128,19 @@ func (m *Mixture) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 	return thermo.State{}, fmt.Errorf("%s: input pair %v: %w", m.name, pair, thermo.ErrUnsupported)
 }
 
+// edgeTol is the relative rounding allowance at the ends of the h and s
+// ranges: a state computed at tmin or tmax must flash back.
+const edgeTol = 1e-13
+
 // tFromH solves h(T) = h for T; h must be finite.
 func (m *Mixture) tFromH(h float64) (float64, error) {
+	// Values a rounding error outside the range are the range ends.
+	if h < m.hInv.lo && m.hInv.lo-h <= edgeTol*math.Abs(m.hInv.lo) {
+		return m.tmin, nil
+	}
+	if h > m.hInv.hi && h-m.hInv.hi <= edgeTol*math.Abs(m.hInv.hi) {
+		return m.tmax, nil
+	}
 	if h < m.hInv.lo {
 		return 0, thermo.Below(m.name, "h", "J/kg", h, m.hInv.lo, fmt.Sprintf("h at the lowest temperature %g K", m.tmin))
 	}
@@ -145,6 +156,12 @@ func (m *Mixture) tFromH(h float64) (float64, error) {
 
 // tFromSigma solves sigma(T) = sigma for T; p and s are only for messages.
 func (m *Mixture) tFromSigma(sigma, p, s float64) (float64, error) {
+	if sigma < m.sInv.lo && m.sInv.lo-sigma <= edgeTol*math.Abs(m.sInv.lo) {
+		return m.tmin, nil
+	}
+	if sigma > m.sInv.hi && sigma-m.sInv.hi <= edgeTol*math.Abs(m.sInv.hi) {
+		return m.tmax, nil
+	}
 	if sigma < m.sInv.lo {
 		return 0, thermo.Below(m.name, "s", "J/(kg K)", s, m.sInv.lo-m.rs*math.Log(p), fmt.Sprintf("s at p = %g Pa and the lowest temperature %g K", p, m.tmin))
 	}
