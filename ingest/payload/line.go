@@ -1,0 +1,286 @@
+package payload
+
+import (
+	"bytes"
+	"fmt"
+	"math"
+	"strconv"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+)
+
+// maxLineNanos bounds line-protocol timestamps so that the multiplication
+// by the precision cannot overflow int64 (year 2262 in nanoseconds).
+const maxLineNanos = math.MaxInt64
+
+type lpField struct {
+	key   []byte
+	value float64
+	kind  byte // 'n' number, 's' string (quality), 'x' ignored string
+	sval  []byte
+}
+
+func (d *Decoder) decodeLines(data []byte, recv time.Time, dst []ingest.Sample, errs []Error) ([]ingest.Sample, []Error) {
+	var fields []lpField
+	var nameBuf []byte
+	for len(data) > 0 {
+		var line []byte
+		if i := bytes.IndexByte(data, '\n'); i >= 0 {
+			line, data = data[:i], data[i+1:]
+		} else {
+			line, data = data, nil
+		}
+		line = bytes.TrimRight(line, "\r")
+		line = bytes.TrimLeft(line, " \t")
+		if len(line) == 0 || line[0] == '#' {
+			continue
+		}
+		var err error
+		var base []byte
+		var ts int64
+		var hasTS bool
+		base, fields, ts, hasTS, err = parseLine(line, fields[:0])
+		if err != nil {
+			errs = append(errs, Error{Tag: d.name(base), Err: err})
+			continue
+		}
+		var st time.Time
+		if hasTS {
+			p := d.Precision
+			if p <= 0 {
+				p = time.Nanosecond
+			}
+			if ts > maxLineNanos/int64(p) || ts < -maxLineNanos/int64(p) {
+				errs = append(errs, Error{Tag: d.name(base), Err: fmt.Errorf("%w: timestamp %d overflows", ErrBadTime, ts)})
+				continue
+			}
+			st = time.Unix(0, ts*int64(p)).UTC()
+		}
+		q := ingest.Good
+		var status uint32
+		var hasStatus, haveQ bool
+		bad := false
+		for i := range fields {
+			f := &fields[i]
+			switch string(f.key) {
+			case "quality":
+				if f.kind != 's' {
+					errs = append(errs, Error{Tag: d.name(base), Err: fmt.Errorf("%w: quality must be a string", ErrQuality)})
+					bad = true
+					break
+				}
+				qq, err := parseQuality(string(f.sval))
+				if err != nil {
+					errs = append(errs, Error{Tag: d.name(base), Err: err})
+					bad = true
+					break
+				}
+				q, haveQ = qq, true
+			case "status":
+				if f.kind != 'n' || f.value < 0 || f.value > math.MaxUint32 || f.value != math.Trunc(f.value) {
+					errs = append(errs, Error{Tag: d.name(base), Err: fmt.Errorf("%w: status must be an integer 0..4294967295", ErrBadStatus)})
+					bad = true
+					break
+				}
+				status, hasStatus = uint32(f.value), true
+			}
+		}
+		if bad {
+			continue
+		}
+		if hasStatus && !haveQ {
+			q = ingest.QualityFromStatus(status)
+		}
+		n := 0
+		for i := range fields {
+			f := &fields[i]
+			if f.kind != 'n' || string(f.key) == "status" {
+				continue
+			}
+			var tag string
+			if string(f.key) == "value" {
+				tag = d.name(base)
+			} else {
+				nameBuf = append(append(append(nameBuf[:0], base...), '.'), f.key...)
+				tag = d.name(nameBuf)
+			}
+			dst = append(dst, ingest.Sample{Tag: tag, SourceTime: st, ReceiveTime: recv, Value: f.value,
+				Quality: q, StatusCode: status, HasStatus: hasStatus})
+			n++
+		}
+		if n == 0 {
+			errs = append(errs, Error{Tag: d.name(base), Err: fmt.Errorf("%w: line has no numeric field", ErrNoValue)})
+		}
+	}
+	return dst, errs
+}
+
+// parseLine splits one line. It returns the series base name (the "tag"
+// tag's value, or the measurement), unescaped.
+func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int64, hasTS bool, err error) {
+	// Measurement: up to an unescaped ',' or ' '.
+	i := 0
+	var meas []byte
+	meas, i = scanKey(line, i, ",  ")
+	if len(meas) == 0 {
+		return nil, fields, 0, false, fmt.Errorf("%w: missing measurement", ErrSyntax)
+	}
+	base = meas
+	// Tag set.
+	for i < len(line) && line[i] == ',' {
+		i++
+		var k, v []byte
+		k, i = scanKey(line, i, "=")
+		if i >= len(line) || line[i] != '=' || len(k) == 0 {
+			return base, fields, 0, false, fmt.Errorf("%w: bad tag set", ErrSyntax)
+		}
+		i++
+		v, i = scanKey(line, i, ", ")
+		if len(v) == 0 {
+			return base, fields, 0, false, fmt.Errorf("%w: empty tag value", ErrSyntax)
+		}
+		if string(k) == "tag" {
+			base = v
+		}
+	}
+	if i >= len(line) || line[i] != ' ' {
+		return base, fields, 0, false, fmt.Errorf("%w: missing field set", ErrSyntax)
+	}
+	for i < len(line) && line[i] == ' ' {
+		i++
+	}
+	// Field set.
+	for {
+		var k []byte
+		k, i = scanKey(line, i, "=")
+		if i >= len(line) || line[i] != '=' || len(k) == 0 {
+			return base, fields, 0, false, fmt.Errorf("%w: bad field", ErrSyntax)
+		}
+		i++
+		if i >= len(line) {
+			return base, fields, 0, false, fmt.Errorf("%w: field %q without value", ErrSyntax, k)
+		}
+		f := lpField{key: k}
+		if line[i] == '"' {
+			j := i + 1
+			var sb []byte
+			closed := false
+			for j < len(line) {
+				c := line[j]
+				if c == '\\' && j+1 < len(line) && (line[j+1] == '"' || line[j+1] == '\\') {
+					sb = append(sb, line[j+1])
+					j += 2
+					continue
+				}
+				if c == '"' {
+					closed = true
+					j++
+					break
+				}
+				sb = append(sb, c)
+				j++
+			}
+			if !closed {
+				return base, fields, 0, false, fmt.Errorf("%w: unterminated string field %q", ErrSyntax, k)
+			}
+			f.kind, f.sval = 's', sb
+			i = j
+		} else {
+			j := i
+			for j < len(line) && line[j] != ',' && line[j] != ' ' {
+				j++
+			}
+			v, perr := parseLPValue(line[i:j])
+			if perr != nil {
+				return base, fields, 0, false, fmt.Errorf("field %q: %w", k, perr)
+			}
+			f.kind, f.value = 'n', v
+			i = j
+		}
+		fields = append(fields, f)
+		if i < len(line) && line[i] == ',' {
+			i++
+			continue
+		}
+		break
+	}
+	for i < len(line) && line[i] == ' ' {
+		i++
+	}
+	if i < len(line) {
+		t, perr := strconv.ParseInt(string(bytes.TrimRight(line[i:], " \t")), 10, 64)
+		if perr != nil {
+			return base, fields, 0, false, fmt.Errorf("%w: %q", ErrBadTime, truncate(line[i:]))
+		}
+		ts, hasTS = t, true
+	}
+	return base, fields, ts, hasTS, nil
+}
+
+// scanKey reads up to an unescaped byte in stop, removing backslash escapes
+// of ',', ' ', '=' and '\\'. The result aliases line when nothing was
+// escaped.
+func scanKey(line []byte, i int, stop string) ([]byte, int) {
+	start := i
+	var out []byte
+	escaped := false
+	for i < len(line) {
+		c := line[i]
+		if c == '\\' && i+1 < len(line) {
+			n := line[i+1]
+			if n == ',' || n == ' ' || n == '=' || n == '\\' {
+				if !escaped {
+					out = append(out, line[start:i]...)
+					escaped = true
+				}
+				out = append(out, n)
+				i += 2
+				continue
+			}
+		}
+		if bytes.IndexByte([]byte(stop), c) >= 0 {
+			break
+		}
+		if escaped {
+			out = append(out, c)
+		}
+		i++
+	}
+	if escaped {
+		return out, i
+	}
+	return line[start:i], i
+}
+
+func parseLPValue(b []byte) (float64, error) {
+	if len(b) == 0 {
+		return 0, fmt.Errorf("%w: empty value", ErrBadValue)
+	}
+	switch string(b) {
+	case "t", "T", "true", "True", "TRUE":
+		return 1, nil
+	case "f", "F", "false", "False", "FALSE":
+		return 0, nil
+	}
+	last := b[len(b)-1]
+	switch last {
+	case 'i':
+		n, err := strconv.ParseInt(string(b[:len(b)-1]), 10, 64)
+		if err != nil {
+			return 0, fmt.Errorf("%w: %q", ErrBadValue, truncate(b))
+		}
+		return float64(n), nil
+	case 'u':
+		n, err := strconv.ParseUint(string(b[:len(b)-1]), 10, 64)
+		if err != nil {
+			return 0, fmt.Errorf("%w: %q", ErrBadValue, truncate(b))
+		}
+		return float64(n), nil
+	}
+	v, err := strconv.ParseFloat(string(b), 64)
+	if err != nil {
+		return 0, fmt.Errorf("%w: %q", ErrBadValue, truncate(b))
+	}
+	return v, nil
+}

@@ -1,0 +1,170 @@
+// Package payload decodes NATS message payloads into ingest samples.
+//
+// Three formats are accepted (Detect picks one by the first non-blank byte:
+// '{' or '[' is JSON, anything else line protocol).
+//
+// # JSON sample
+//
+//	{"tag": "T1.PT101", "ts": "2026-12-01T10:00:00.250Z", "value": 12.5,
+//	 "quality": "good", "status": 0}
+//
+//   - tag (string, required): the source tag name looked up in the tag map.
+//   - value (number or boolean, required): the reading in the unit configured
+//     for the tag; true/false are 1/0. null, strings, objects are errors.
+//   - ts (optional): source timestamp, either an RFC 3339 string (fraction
+//     of seconds allowed) or a number of Unix milliseconds (fraction
+//     allowed). Missing: the receive time is used.
+//   - quality (optional string): "good", "uncertain" or "bad".
+//   - status (optional unsigned integer < 2^32): an OPC UA StatusCode; sets
+//     the quality from its severity bits unless quality is also given.
+//   - any other key is ignored.
+//
+// # JSON batch
+//
+//	{"ts": <default ts>, "samples": [<JSON sample>, ...]}   or   [<JSON sample>, ...]
+//
+// The batch-level ts, when given, applies to samples without their own ts.
+// A bad element is counted and skipped; the others are kept.
+//
+// # InfluxDB line protocol
+//
+//	<measurement>[,<tagkey>=<tagvalue>...] <field>=<value>[,...] [<timestamp>]
+//
+// Tag name: the value of the line-protocol tag "tag" if present, else the
+// measurement; a field named "value" gives that name as it is, every other
+// field gives "<name>.<field>". Fields "quality" (string: good, uncertain,
+// bad) and "status" (integer: OPC UA StatusCode) are metadata for the other
+// fields of the line. Values: floats, integers (i), unsigned (u), booleans
+// (t, true, f, false -> 1, 0); other string fields are ignored. The
+// timestamp is an integer in the decoder's precision (nanoseconds by
+// default). Escapes follow the line-protocol rules (backslash before comma,
+// space and equals sign; backslash before quote and backslash in strings).
+// Lines starting with '#' and blank lines are skipped.
+package payload
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+)
+
+// Errors callers branch on.
+var (
+	ErrSyntax    = errors.New("payload syntax error")
+	ErrNoTag     = errors.New("sample without tag")
+	ErrNoValue   = errors.New("sample without value")
+	ErrBadValue  = errors.New("value is not a number or boolean")
+	ErrBadTime   = errors.New("bad timestamp")
+	ErrBadStatus = errors.New("bad status code")
+	ErrQuality   = errors.New("unknown quality")
+)
+
+// Error is one decode failure: the tag when it could be read (for the
+// once-per-tag-per-minute log), and the cause.
+type Error struct {
+	Tag string
+	Err error
+}
+
+func (e Error) Error() string {
+	if e.Tag == "" {
+		return e.Err.Error()
+	}
+	return fmt.Sprintf("tag %q: %v", e.Tag, e.Err)
+}
+
+func (e Error) Unwrap() error { return e.Err }
+
+// Format is a payload format.
+type Format int
+
+// Formats.
+const (
+	Auto Format = iota
+	JSON
+	LineProtocol
+)
+
+// ParseFormat reads "auto", "json" or "line" (also "influx", "lineprotocol").
+func ParseFormat(s string) (Format, error) {
+	switch s {
+	case "", "auto":
+		return Auto, nil
+	case "json":
+		return JSON, nil
+	case "line", "influx", "lineprotocol", "line_protocol":
+		return LineProtocol, nil
+	}
+	return Auto, fmt.Errorf("unknown payload format %q (auto, json, line)", s)
+}
+
+// Decoder decodes payloads. It keeps an intern table of tag names so that a
+// steady stream of the same tags allocates no strings. A Decoder is not safe
+// for concurrent use; use one per subscription goroutine.
+type Decoder struct {
+	Format Format
+	// Precision of line-protocol timestamps; 0 means time.Nanosecond.
+	Precision time.Duration
+	intern    map[string]string
+}
+
+// NewDecoder returns a decoder for format f.
+func NewDecoder(f Format) *Decoder {
+	return &Decoder{Format: f, intern: make(map[string]string)}
+}
+
+const maxIntern = 1 << 16
+
+func (d *Decoder) name(b []byte) string {
+	if s, ok := d.intern[string(b)]; ok {
+		return s
+	}
+	s := string(b)
+	if d.intern == nil {
+		d.intern = make(map[string]string)
+	}
+	if len(d.intern) < maxIntern {
+		d.intern[s] = s
+	}
+	return s
+}
+
+// Decode appends the samples in data to dst and the failures to errs.
+// recv is the receive time stamped on every sample. Decode never panics and
+// never returns a sample with a missing tag; non-finite values are passed on
+// for the pipeline to count (they cannot be written in JSON and are parsed
+// from line protocol only if spelled as a float, e.g. NaN).
+func (d *Decoder) Decode(data []byte, recv time.Time, dst []ingest.Sample, errs []Error) ([]ingest.Sample, []Error) {
+	f := d.Format
+	if f == Auto {
+		f = Detect(data)
+	}
+	if f == JSON {
+		return d.decodeJSON(data, recv, dst, errs)
+	}
+	return d.decodeLines(data, recv, dst, errs)
+}
+
+// Detect guesses the format from the first non-blank byte.
+func Detect(data []byte) Format {
+	t := bytes.TrimLeft(data, " \t\r\n")
+	if len(t) > 0 && (t[0] == '{' || t[0] == '[') {
+		return JSON
+	}
+	return LineProtocol
+}
+
+func parseQuality(s string) (ingest.Quality, error) {
+	switch s {
+	case "good", "Good", "GOOD":
+		return ingest.Good, nil
+	case "uncertain", "Uncertain", "UNCERTAIN":
+		return ingest.Uncertain, nil
+	case "bad", "Bad", "BAD":
+		return ingest.Bad, nil
+	}
+	return ingest.Bad, fmt.Errorf("%w %q (good, uncertain, bad)", ErrQuality, s)
+}
