@@ -64,7 +64,7 @@ func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
 			pV := dV * f.rhor * RT * (1 + rV.D)
 			sp := satPoint{T: T, p: pV, rhoL: dL * f.rhor, rhoV: dV * f.rhor}
 			if !(dL > dV*(1+1e-6)) || !(1+2*rL.D+rL.DD > 0) || !(1+2*rV.D+rV.DD > 0) ||
-				!(pV > 0) || math.Abs(pL-pV) > 1e-8*pV {
+				!(pV > 0) || math.Abs(pL-pV) > 1e-8*pV+1e-12*dL*f.rhor*RT {
 				return satPoint{}, fmt.Errorf("%s: Maxwell construction at T = %g K converged to a trivial or unstable solution: %w", f.name, T, thermo.ErrNoConvergence)
 			}
 			return sp, nil
