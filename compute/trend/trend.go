@@ -1,0 +1,247 @@
+// Package trend keeps the rolling views of a derived figure: an
+// exponentially weighted trend line with a time constant, a time-weighted
+// rolling mean, and daily aggregates in the site's local time zone.
+//
+// Time is a parameter: every Add takes the observation time from the
+// caller, so the same code runs live, in replay and on a fake clock.
+package trend
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"time"
+	_ "time/tzdata" // site time zones must work on machines without tzdata
+)
+
+// ErrNotFinite: an observation was NaN or infinite and was not taken.
+var ErrNotFinite = errors.New("trend: value is not finite")
+
+// ErrOutOfOrder: an observation was older than the previous one.
+var ErrOutOfOrder = errors.New("trend: observation older than the previous one")
+
+// EWMA is an exponentially weighted moving average for irregular sampling:
+// with a time constant tau, a new value observed dt after the previous one
+// gets weight alpha = 1 - exp(-dt/tau) (the exact discretisation of a
+// first-order low-pass filter; common practice, no source).
+type EWMA struct {
+	Tau   time.Duration `json:"tau"`
+	Value float64       `json:"value"`
+	Last  time.Time     `json:"last"`
+	N     int           `json:"n"`
+}
+
+// Add folds in x observed at now.
+func (e *EWMA) Add(now time.Time, x float64) error {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return ErrNotFinite
+	}
+	if e.N == 0 {
+		e.Value, e.Last, e.N = x, now, 1
+		return nil
+	}
+	dt := now.Sub(e.Last)
+	if dt < 0 {
+		return ErrOutOfOrder
+	}
+	alpha := 1.0
+	if e.Tau > 0 {
+		alpha = 1 - math.Exp(-dt.Seconds()/e.Tau.Seconds())
+	}
+	e.Value += alpha * (x - e.Value)
+	e.Last = now
+	e.N++
+	return nil
+}
+
+// Window is a time-weighted rolling mean over the last Span: each value
+// holds until the next one (zero-order hold), so irregular observations are
+// weighted by how long they held, not by count.
+type Window struct {
+	Span   time.Duration
+	points []point
+}
+
+type point struct {
+	t time.Time
+	v float64
+}
+
+// Add appends x observed at now and drops points older than the span.
+func (w *Window) Add(now time.Time, x float64) error {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return ErrNotFinite
+	}
+	if n := len(w.points); n > 0 && now.Before(w.points[n-1].t) {
+		return ErrOutOfOrder
+	}
+	w.points = append(w.points, point{now, x})
+	// Keep the last point at or before the window start: it holds into it.
+	start := now.Add(-w.Span)
+	cut := 0
+	for cut+1 < len(w.points) && !w.points[cut+1].t.After(start) {
+		cut++
+	}
+	if cut > 0 {
+		w.points = append(w.points[:0], w.points[cut:]...)
+	}
+	return nil
+}
+
+// Mean returns the time-weighted mean over [now-Span, now]; ok is false when
+// the window holds no value.
+func (w *Window) Mean(now time.Time) (mean float64, ok bool) {
+	if len(w.points) == 0 {
+		return 0, false
+	}
+	start := now.Add(-w.Span)
+	var sum, dur float64
+	for i, p := range w.points {
+		from := p.t
+		if from.Before(start) {
+			from = start
+		}
+		to := now
+		if i+1 < len(w.points) {
+			to = w.points[i+1].t
+		}
+		if d := to.Sub(from).Seconds(); d > 0 {
+			sum += d * p.v
+			dur += d
+		}
+	}
+	if dur == 0 {
+		return w.points[len(w.points)-1].v, true
+	}
+	return sum / dur, true
+}
+
+// Day is the aggregate of one local calendar day.
+type Day struct {
+	Date       string    `json:"date"` // YYYY-MM-DD in the site time zone
+	Start, End time.Time `json:"-"`    // local midnight to the next local midnight
+	N          int       `json:"n"`
+	Mean       float64   `json:"mean"`
+	Median     float64   `json:"median"`
+	Min        float64   `json:"min"`
+	Max        float64   `json:"max"`
+	// SteadyCoverage is the share of the day's length (23, 24 or 25 h
+	// across daylight-saving changes) during which the machine was running
+	// and steady.
+	SteadyCoverage float64 `json:"steady_coverage"`
+}
+
+// Daily accumulates per-day aggregates in a time zone.
+type Daily struct {
+	loc     *time.Location
+	cur     dayAcc
+	hasCur  bool
+	lastT   time.Time
+	lastOK  bool // last observation was steady and running
+	hasLast bool
+}
+
+type dayAcc struct {
+	date       string
+	start, end time.Time
+	values     []float64
+	steadySec  float64
+}
+
+// NewDaily returns an accumulator for the IANA time zone tz (e.g.
+// "Europe/Oslo", "UTC").
+func NewDaily(tz string) (*Daily, error) {
+	loc, err := time.LoadLocation(tz)
+	if err != nil {
+		return nil, fmt.Errorf("trend: time zone %q: %w", tz, err)
+	}
+	return &Daily{loc: loc}, nil
+}
+
+func (d *Daily) bounds(t time.Time) (string, time.Time, time.Time) {
+	lt := t.In(d.loc)
+	y, m, dd := lt.Date()
+	start := time.Date(y, m, dd, 0, 0, 0, 0, d.loc)
+	end := time.Date(y, m, dd+1, 0, 0, 0, 0, d.loc)
+	return start.Format("2006-01-02"), start, end
+}
+
+// Add records one evaluation at now: value (counted in the statistics only
+// when steady) and whether the machine was running and steady. Steady time
+// is credited from the previous observation to this one when the previous
+// one was steady. It returns the days completed by this observation.
+func (d *Daily) Add(now time.Time, value float64, steady bool) ([]Day, error) {
+	if steady && (math.IsNaN(value) || math.IsInf(value, 0)) {
+		return nil, ErrNotFinite
+	}
+	if d.hasLast && now.Before(d.lastT) {
+		return nil, ErrOutOfOrder
+	}
+	var done []Day
+	if !d.hasCur {
+		d.cur = d.newAcc(now)
+		d.hasCur = true
+	}
+	// Credit steady time, split at midnights.
+	if d.hasLast && d.lastOK {
+		from := d.lastT
+		for from.Before(now) {
+			if !from.Before(d.cur.end) {
+				done = append(done, d.close())
+				d.cur = d.newAcc(from)
+				continue
+			}
+			to := now
+			if to.After(d.cur.end) {
+				to = d.cur.end
+			}
+			d.cur.steadySec += to.Sub(from).Seconds()
+			from = to
+		}
+	}
+	for !now.Before(d.cur.end) {
+		done = append(done, d.close())
+		d.cur = d.newAcc(now)
+	}
+	if steady {
+		d.cur.values = append(d.cur.values, value)
+	}
+	d.lastT, d.lastOK, d.hasLast = now, steady, true
+	return done, nil
+}
+
+func (d *Daily) newAcc(t time.Time) dayAcc {
+	date, s, e := d.bounds(t)
+	return dayAcc{date: date, start: s, end: e}
+}
+
+// Current returns the aggregate of the day in progress.
+func (d *Daily) Current() (Day, bool) {
+	if !d.hasCur {
+		return Day{}, false
+	}
+	return d.cur.day(), true
+}
+
+func (d *Daily) close() Day { return d.cur.day() }
+
+func (a dayAcc) day() Day {
+	out := Day{Date: a.date, Start: a.start, End: a.end, N: len(a.values)}
+	if n := len(a.values); n > 0 {
+		s := append([]float64(nil), a.values...)
+		sort.Float64s(s)
+		var sum float64
+		for _, v := range s {
+			sum += v
+		}
+		out.Mean, out.Min, out.Max = sum/float64(n), s[0], s[n-1]
+		if n%2 == 1 {
+			out.Median = s[n/2]
+		} else {
+			out.Median = (s[n/2-1] + s[n/2]) / 2
+		}
+	}
+	out.SteadyCoverage = a.steadySec / a.end.Sub(a.start).Seconds()
+	return out
+}
