@@ -30,7 +30,7 @@ type RecordJSON struct {
 
 // FigureJSON is one figure of a RecordJSON.
 type FigureJSON struct {
-	Name        string   `json:"name"`          // series name with its SI unit suffix
+	Name        string   `json:"name"`            // series name with its SI unit suffix
 	Value       *float64 `json:"value,omitempty"` // in the unit the name says; absent when quality is bad
 	U95         *float64 `json:"u95,omitempty"`   // expanded uncertainty (k = 2) in the unit of value; absent when not evaluated or bad
 	Quality     string   `json:"quality"`

@@ -102,7 +102,7 @@ func TestVMWriteReadBack(t *testing.T) {
 			"class": "performance", "figure": "isentropic_efficiency"}}.Key()
 	}
 	evMS := ev.Time.UnixMilli()
-	want[evLab("exw_alert_state_code")] = []sample{{evMS, 2}}   // AlertFiring = 2 (compute/record.go)
+	want[evLab("exw_alert_state_code")] = []sample{{evMS, 2}}      // AlertFiring = 2 (compute/record.go)
 	want[evLab("exw_alert_from_state_code")] = []sample{{evMS, 1}} // AlertPending = 1
 	want[evLab("exw_alert_value")] = []sample{{evMS, 0.781}}
 	want[evLab("exw_alert_limit")] = []sample{{evMS, 0.79}}
