@@ -70,6 +70,7 @@ func (m *Mixture) PropertiesPT(p, T float64) (Properties, error) {
 	if !finiteProps(&pr) {
 		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, p = %g Pa: %w", Name, T, p, thermo.ErrNoConvergence)
 	}
+	pr.P = p // equal to p(T, D) within 1e-9 relative (density checks this); report the input exactly
 	return pr, nil
 }
 

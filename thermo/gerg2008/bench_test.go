@@ -1,0 +1,74 @@
+package gerg2008
+
+import (
+	"testing"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+// Benchmark gases: typical pipeline-quality natural gases, compositions
+// chosen for these benchmarks (common practice, no source).
+var (
+	gas11 = map[string]float64{"CH4": 0.9, "C2H6": 0.04, "C3H8": 0.015, "nC4": 0.003, "iC4": 0.003,
+		"nC5": 0.001, "iC5": 0.001, "C6": 0.001, "N2": 0.02, "CO2": 0.015, "He": 0.001}
+	gas10 = map[string]float64{"CH4": 0.901, "C2H6": 0.04, "C3H8": 0.015, "nC4": 0.003, "iC4": 0.003,
+		"nC5": 0.001, "iC5": 0.001, "C6": 0.001, "N2": 0.02, "CO2": 0.015}
+)
+
+var sinkState thermo.State
+
+func benchPT(b *testing.B, comp map[string]float64) {
+	m, err := New(comp)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		st, err := m.Flash(thermo.PT, 6e6, 300)
+		if err != nil {
+			b.Fatal(err)
+		}
+		sinkState = st
+	}
+}
+
+func benchPS(b *testing.B, comp map[string]float64) {
+	m, err := New(comp)
+	if err != nil {
+		b.Fatal(err)
+	}
+	s1, err := m.Flash(thermo.PT, 3e6, 290) // compressor suction
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		st, err := m.Flash(thermo.PS, 7e6, s1.S) // isentropic discharge
+		if err != nil {
+			b.Fatal(err)
+		}
+		sinkState = st
+	}
+}
+
+// BenchmarkPT10 is h(p,T) (a full p,T state) of a 10-component gas at 6 MPa, 300 K.
+func BenchmarkPT10(b *testing.B) { benchPT(b, gas10) }
+
+// BenchmarkPT11 is the same for an 11-component gas.
+func BenchmarkPT11(b *testing.B) { benchPT(b, gas11) }
+
+// BenchmarkPS10 is the isentropic discharge state T(7 MPa, s(3 MPa, 290 K)), 10 components.
+func BenchmarkPS10(b *testing.B) { benchPS(b, gas10) }
+
+// BenchmarkPS11 is the same for the 11-component gas.
+func BenchmarkPS11(b *testing.B) { benchPS(b, gas11) }
+
+// BenchmarkNew is the per-mixture set-up of the 11-component gas.
+func BenchmarkNew(b *testing.B) {
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := New(gas11); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
