@@ -223,8 +223,35 @@ func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
 			lo, branch = sp.T, thermo.PhaseVapour
 			sat = &v
 		}
-	} else if !f.pseudoPure && p >= f.pc {
+	} else if p >= f.pc {
 		branch = thermo.PhaseSupercritical // phase set per T below
+	} else if f.pseudoPure {
+		// Air: liquid below the bubble temperature, vapour above the dew
+		// temperature (CoolProp's ancillaries); no model in between.
+		Tb, okb := f.ancInvert(&f.ancPL, p)
+		Td, okd := f.ancInvert(&f.ancPV, p)
+		if okb && okd && Tb < Td {
+			l, err := f.statePT(p, Tb, thermo.PhaseLiquid, nil, 0)
+			if err != nil {
+				return thermo.State{}, err
+			}
+			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
+			if err != nil {
+				return thermo.State{}, err
+			}
+			yl, yv := l.S, v.S
+			if isH {
+				yl, yv = l.H, v.H
+			}
+			switch {
+			case y <= yl:
+				hi, branch, sat = Tb, thermo.PhaseLiquid, &l
+			case y >= yv:
+				lo, branch, sat = Td, thermo.PhaseVapour, &v
+			default:
+				return thermo.State{}, fmt.Errorf("%s: p = %g Pa with this h or s lies between the bubble (%g K) and dew (%g K) states; two-phase air is not modelled: %w", f.name, p, Tb, Td, thermo.ErrPhase)
+			}
+		}
 	}
 	return f.solveT(p, y, isH, lo, hi, branch, sat)
 }

@@ -166,6 +166,8 @@ type Fluid struct {
 
 	satTriple satPoint // Maxwell solution at T_min
 	ancMargin float64  // relative band around the ancillary p_sat inside which the Maxwell solution decides the phase
+	ancTolL   float64  // relative widening of the rhoL ancillary for the liquid-branch bound
+	ancTolV   float64  // relative widening of the rhoV ancillary for the vapour-branch bound
 
 	// lastSatP caches the latest saturation state found from a pressure
 	// (repeated flashes at one outlet pressure reuse it).
@@ -348,6 +350,8 @@ func (f *Fluid) Parts(tau, delta float64) (ideal, residual Derivatives, err erro
 func (f *Fluid) calibrate() error {
 	if f.pseudoPure {
 		f.ancMargin = 0.02 + 3*max(f.ancPL.maxErr, f.ancPV.maxErr)
+		f.ancTolL = 3*f.ancRL.maxErr + 0.005
+		f.ancTolV = 3*f.ancRV.maxErr + 0.005
 		return nil
 	}
 	st, err := f.maxwell(f.tmin, 0, 0)
@@ -355,8 +359,8 @@ func (f *Fluid) calibrate() error {
 		return fmt.Errorf("helmholtz: %s: saturation at the triple point: %w", f.name, err)
 	}
 	f.satTriple = st
-	dev := 0.0
-	const n = 24
+	dev, devL, devV := 0.0, 0.0, 0.0
+	const n = 40
 	for i := 0; i <= n; i++ {
 		T := f.tmin + (0.99*f.tc-f.tmin)*float64(i)/n
 		sp, err := f.maxwell(T, 0, 0)
@@ -364,7 +368,13 @@ func (f *Fluid) calibrate() error {
 			return fmt.Errorf("helmholtz: %s: saturation at %g K: %w", f.name, T, err)
 		}
 		dev = max(dev, math.Abs(f.ancP.eval(T)/sp.p-1))
+		if T <= 0.98*f.tc {
+			devL = max(devL, math.Abs(f.ancRL.eval(T)/sp.rhoL-1))
+			devV = max(devV, math.Abs(f.ancRV.eval(T)/sp.rhoV-1))
+		}
 	}
 	f.ancMargin = max(3*dev, 5*f.ancP.maxErr, 0.002)
+	f.ancTolL = 3*devL + 0.005
+	f.ancTolV = 3*devV + 0.005
 	return nil
 }

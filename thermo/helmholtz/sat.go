@@ -137,28 +137,42 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 
 // ancTsat inverts the saturation-pressure ancillary (starting value only).
 func (f *Fluid) ancTsat(p float64) float64 {
-	lo, hi := f.tmin, math.Min(f.tc, f.ancP.tr)*(1-1e-9)
+	T, _ := f.ancInvert(&f.ancP, p)
+	return T
+}
+
+// ancInvert solves a.eval(T) = p for T in [T_min, min(Tc, a.tr)] (Newton on
+// ln p with a numerical slope, safeguarded by bisection). ok is false when
+// p lies outside the ancillary's range there (T is then the nearer end).
+func (f *Fluid) ancInvert(a *ancillary, p float64) (T float64, ok bool) {
+	lo, hi := f.tmin, math.Min(f.tc, a.tr)*(1-1e-9)
 	lp := math.Log(p)
-	T := 0.5 * (lo + hi)
-	for it := 0; it < 60; it++ {
-		v := math.Log(f.ancP.eval(T)) - lp
+	if math.Log(a.eval(lo)) > lp {
+		return lo, false
+	}
+	if math.Log(a.eval(hi)) < lp {
+		return hi, false
+	}
+	T = 0.5 * (lo + hi)
+	for it := 0; it < 100; it++ {
+		v := math.Log(a.eval(T)) - lp
 		if v > 0 {
 			hi = T
 		} else {
 			lo = T
 		}
 		h := 1e-6 * T
-		d := (math.Log(f.ancP.eval(T+h)) - math.Log(f.ancP.eval(T-h))) / (2 * h)
+		d := (math.Log(a.eval(T+h)) - math.Log(a.eval(T-h))) / (2 * h)
 		Tn := T - v/d
 		if !(Tn > lo && Tn < hi) {
 			Tn = 0.5 * (lo + hi)
 		}
-		if math.Abs(Tn-T) < 1e-9*T {
-			return Tn
+		if math.Abs(Tn-T) < 1e-12*T {
+			return Tn, true
 		}
 		T = Tn
 	}
-	return T
+	return T, true
 }
 
 // SatP returns the saturation pressure in Pa at T in K (Maxwell criterion

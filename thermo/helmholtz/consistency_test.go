@@ -1,0 +1,450 @@
+package helmholtz
+
+import (
+	"errors"
+	"math"
+	"sync"
+	"testing"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+var pureNames = []string{"ammonia", "ammonia-1993", "r134a", "co2", "nitrogen", "methane", "water-iapws95"}
+
+// TestDerivativesFiniteDifference checks every analytic derivative of both
+// parts against central differences (common practice, no source: an
+// identity of the evaluator). Covers power, Gaussian, Gao association
+// (ammonia), non-analytic (water near its critical point, co2) and the
+// generalized Planck-Einstein term (air).
+func TestDerivativesFiniteDifference(t *testing.T) {
+	cases := []struct {
+		fluid      string
+		tau, delta float64
+	}{
+		{"ammonia", 1.3, 2.5}, {"ammonia", 0.9, 0.3}, {"ammonia-1993", 1.1, 1.7},
+		{"r134a", 1.2, 2.2}, {"co2", 1.02, 0.9}, {"co2", 0.97, 1.08}, {"nitrogen", 1.5, 2.4},
+		{"methane", 1.1, 0.8}, {"air-helmholtz", 1.4, 2.6}, {"air-helmholtz", 0.3, 0.05},
+		{"water-iapws95", 1.05, 1.1}, {"water-iapws95", 0.995, 0.93}, {"water-iapws95", 2.2, 3.1},
+	}
+	for _, c := range cases {
+		f := mustNew(t, c.fluid)
+		i0, r0, err := f.Parts(c.tau, c.delta)
+		if err != nil {
+			t.Fatal(err)
+		}
+		h := 1e-5
+		ip, rp, _ := f.Parts(c.tau, c.delta*(1+h))
+		im, rm, _ := f.Parts(c.tau, c.delta*(1-h))
+		dd := 2 * h * c.delta
+		it, rt, _ := f.Parts(c.tau*(1+h), c.delta)
+		iu, ru, _ := f.Parts(c.tau*(1-h), c.delta)
+		dt := 2 * h * c.tau
+		check := func(name string, got, want float64) {
+			if math.Abs(got-want) > 2e-6*math.Max(1, math.Abs(want)) {
+				t.Errorf("%s tau=%g delta=%g %s: analytic %.10g, numerical %.10g", c.fluid, c.tau, c.delta, name, got, want)
+			}
+		}
+		check("phir_delta", r0.PhiDelta, (rp.Phi-rm.Phi)/dd)
+		check("phir_deltadelta", r0.PhiDeltaDelta, (rp.PhiDelta-rm.PhiDelta)/dd)
+		check("phir_tau", r0.PhiTau, (rt.Phi-ru.Phi)/dt)
+		check("phir_tautau", r0.PhiTauTau, (rt.PhiTau-ru.PhiTau)/dt)
+		check("phir_deltatau", r0.PhiDeltaTau, (rt.PhiDelta-ru.PhiDelta)/dt)
+		check("phi0_delta", i0.PhiDelta, (ip.Phi-im.Phi)/dd)
+		check("phi0_tau", i0.PhiTau, (it.Phi-iu.Phi)/dt)
+		check("phi0_tautau", i0.PhiTauTau, (it.PhiTau-iu.PhiTau)/dt)
+	}
+}
+
+// satTemps returns test temperatures from the triple point to 0.995 Tc.
+func satTemps(f *Fluid) []float64 {
+	var out []float64
+	for _, x := range []float64{0, 0.2, 0.5, 0.8, 0.95, 0.99, 0.995} {
+		out = append(out, f.tmin+x*(0.995*f.tc-f.tmin)/0.995*0.995)
+	}
+	return out
+}
+
+// TestSaturationConsistency: at each temperature the Maxwell solution has
+// equal pressure and equal Gibbs energy in both phases (1e-9 relative to p
+// and to RT; the pressure of the liquid is a small difference of large
+// terms, so its tolerance adds 1e-12 rho_L R T), SatT inverts SatP, and the
+// Clausius-Clapeyron relation holds against a numerical dp/dT (identities,
+// no source).
+func TestSaturationConsistency(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		for _, T := range satTemps(f) {
+			l, v, err := f.Saturated(T)
+			if err != nil {
+				t.Errorf("%s T=%g: %v", name, T, err)
+				continue
+			}
+			pl := l.Rho * f.r * T // rho R T scale
+			var tp tauPart
+			f.q.tauPart(f.tr/T, &tp)
+			pL, _ := f.pOf(&tp, T, l.Rho)
+			pV, _ := f.pOf(&tp, T, v.Rho)
+			if math.Abs(pL-pV) > 1e-9*pV+1e-12*pl {
+				t.Errorf("%s T=%g: p_L %.12g, p_V %.12g", name, T, pL, pV)
+			}
+			gL, gV := l.H-T*l.S, v.H-T*v.S
+			if math.Abs(gL-gV) > 1e-9*f.r*T {
+				t.Errorf("%s T=%g: g_L - g_V = %g J/kg (RT = %g)", name, T, gL-gV, f.r*T)
+			}
+			if !(l.Rho > v.Rho) || l.Phase != thermo.PhaseLiquid || v.Phase != thermo.PhaseVapour {
+				t.Errorf("%s T=%g: rho_L %g rho_V %g", name, T, l.Rho, v.Rho)
+			}
+			Ts, err := f.SatT(l.P)
+			if err != nil || relDiff(Ts, T) > 1e-10 {
+				t.Errorf("%s: SatT(SatP(%g)) = %.12g, %v", name, T, Ts, err)
+			}
+			// Clapeyron: dp/dT = (h_V - h_L)/(T (v_V - v_L)).
+			if T < 0.99*f.tc && T > f.tmin {
+				dT := 1e-4 * T
+				p1, err1 := f.SatP(T + dT)
+				p0, err0 := f.SatP(T - dT)
+				if err1 != nil || err0 != nil {
+					t.Fatal(err1, err0)
+				}
+				num := (p1 - p0) / (2 * dT)
+				cl := (v.H - l.H) / (T * (v.V - l.V))
+				if relDiff(num, cl) > 1e-6 {
+					t.Errorf("%s T=%g: Clapeyron %.10g vs numerical %.10g", name, T, cl, num)
+				}
+			}
+		}
+	}
+}
+
+// TestLatentHeatIdentity: along the saturation line h_fg = T s_fg, which is
+// the Gibbs-energy equality rewritten (identity, no source); and the
+// two-phase states from PX and TX and PH/PS agree with each other.
+func TestLatentHeatIdentity(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		for _, T := range []float64{f.tmin + 1, 0.6 * f.tc, 0.8 * f.tc, 0.95 * f.tc} {
+			if T < f.tmin {
+				continue
+			}
+			l, err := f.Flash(thermo.TX, T, 0)
+			if err != nil {
+				t.Fatal(err)
+			}
+			v, err := f.Flash(thermo.TX, T, 1)
+			if err != nil {
+				t.Fatal(err)
+			}
+			hfg, sfg := v.H-l.H, v.S-l.S
+			if relDiff(hfg, T*sfg) > 1e-9 {
+				t.Errorf("%s T=%g: h_fg %.12g, T s_fg %.12g", name, T, hfg, T*sfg)
+			}
+			m, err := f.Flash(thermo.TX, T, 0.3)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, pr := range []struct {
+				pair thermo.Pair
+				b    float64
+			}{{thermo.PX, 0.3}, {thermo.PH, m.H}, {thermo.PS, m.S}} {
+				s, err := f.Flash(pr.pair, m.P, pr.b)
+				if err != nil {
+					t.Fatalf("%s %v: %v", name, pr.pair, err)
+				}
+				if s.Phase != thermo.PhaseTwoPhase || math.Abs(s.X-0.3) > 1e-9 || relDiff(s.T, T) > 1e-10 || relDiff(s.H, m.H) > 1e-9 {
+					t.Errorf("%s %v at T=%g: x=%.12g T=%.12g phase %v", name, pr.pair, T, s.X, s.T, s.Phase)
+				}
+			}
+			if m.HasDerivatives || m.Cp != 0 {
+				t.Errorf("two-phase state has derivatives")
+			}
+		}
+	}
+}
+
+// TestFlashRoundTrip: (p,h) and (p,s) flashes return the (p,T) state's T to
+// 1e-9 relative (the brief; they converge to about 1e-12) in liquid,
+// vapour, supercritical and near-saturation states of every fluid, and the
+// isentropic end state satisfies s(p2, T2s) = s1 to 1e-9.
+func TestFlashRoundTrip(t *testing.T) {
+	for _, name := range append(pureNames, "air-helmholtz") {
+		f := mustNew(t, name)
+		var states [][2]float64 // p, T
+		for _, Tf := range []float64{0.55, 0.8, 0.97, 1.05, 1.5, 2.5} {
+			T := Tf * f.tc
+			if T < f.tmin || T > f.tmax {
+				continue
+			}
+			for _, pf := range []float64{0.01, 0.3, 0.9, 1.2, 5} {
+				states = append(states, [2]float64{pf * f.pc, T})
+			}
+		}
+		for _, st := range states {
+			p, T := st[0], st[1]
+			s, err := f.Flash(thermo.PT, p, T)
+			if err != nil {
+				if f.pseudoPure && errors.Is(err, thermo.ErrPhase) {
+					continue
+				}
+				t.Errorf("%s PT %g %g: %v", name, p, T, err)
+				continue
+			}
+			for _, pr := range []struct {
+				pair thermo.Pair
+				b    float64
+			}{{thermo.PH, s.H}, {thermo.PS, s.S}} {
+				r, err := f.Flash(pr.pair, p, pr.b)
+				if err != nil {
+					t.Errorf("%s %v p=%g (T=%g %v): %v", name, pr.pair, p, T, s.Phase, err)
+					continue
+				}
+				if relDiff(r.T, T) > 1e-9 || relDiff(r.Rho, s.Rho) > 1e-8 || r.Phase != s.Phase {
+					t.Errorf("%s %v p=%g: T %.12g want %.12g, rho %.10g want %.10g, phase %v want %v", name, pr.pair, p, r.T, T, r.Rho, s.Rho, r.Phase, s.Phase)
+				}
+			}
+			// Isentropic expansion to p/3 and compression to 3p.
+			for _, p2 := range []float64{p / 3, 3 * p} {
+				if p2 > f.pmax {
+					continue
+				}
+				e, err := f.Flash(thermo.PS, p2, s.S)
+				if err != nil {
+					if errors.Is(err, thermo.ErrOutOfRange) || (f.pseudoPure && errors.Is(err, thermo.ErrPhase)) {
+						continue
+					}
+					t.Errorf("%s PS p2=%g s1=%g: %v", name, p2, s.S, err)
+					continue
+				}
+				if e.Phase == thermo.PhaseTwoPhase {
+					continue
+				}
+				chk, err := f.Flash(thermo.PT, p2, e.T)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if math.Abs(chk.S-s.S) > 1e-9*math.Max(math.Abs(s.S), f.r) {
+					t.Errorf("%s: s(p2=%g, T2s=%.12g) = %.12g, s1 = %.12g", name, p2, e.T, chk.S, s.S)
+				}
+			}
+		}
+	}
+}
+
+// TestPhaseAndSpuriousRoots: (p,T) states where a wrong root exists must
+// come out on the stable branch (checked against the saturation state).
+func TestPhaseAndSpuriousRoots(t *testing.T) {
+	cases := []struct {
+		fluid string
+		p, T  float64
+		phase thermo.Phase
+		why   string
+	}{
+		// Water at 300 K, 10 kPa: above p_sat (3.54 kPa), so liquid, although a
+		// metastable vapour root exists (ideal-gas start would find it).
+		{"water-iapws95", 10e3, 300, thermo.PhaseLiquid, "metastable vapour root"},
+		{"water-iapws95", 3e3, 300, thermo.PhaseVapour, "superheated vapour"},
+		// Just either side of the saturation pressure (inside the ancillary
+		// band, so the Maxwell solution decides).
+		{"ammonia", 0, 273.15, thermo.PhaseLiquid, "p_sat (1 + 1e-6)"},
+		{"ammonia", 0, 273.15, thermo.PhaseVapour, "p_sat (1 - 1e-6)"},
+		{"r134a", 0, 0.995 * 374.21, thermo.PhaseLiquid, "near critical, p_sat (1 + 1e-5)"},
+		{"r134a", 0, 0.995 * 374.21, thermo.PhaseVapour, "near critical, p_sat (1 - 1e-5)"},
+		{"co2", 10e6, 300, thermo.PhaseLiquid, "above pc, below Tc"},
+		{"co2", 10e6, 310, thermo.PhaseSupercritical, "above pc and Tc"},
+		{"co2", 5e6, 310, thermo.PhaseVapour, "above Tc, below pc"},
+	}
+	for _, c := range cases {
+		f := mustNew(t, c.fluid)
+		p := c.p
+		var sat satPoint
+		if p == 0 {
+			var err error
+			sat, err = f.maxwell(c.T, 0, 0)
+			if err != nil {
+				t.Fatal(err)
+			}
+			eps := 1e-6
+			if c.T > 0.99*f.tc {
+				eps = 1e-5
+			}
+			if c.phase == thermo.PhaseLiquid {
+				p = sat.p * (1 + eps)
+			} else {
+				p = sat.p * (1 - eps)
+			}
+		}
+		s, err := f.Flash(thermo.PT, p, c.T)
+		if err != nil {
+			t.Errorf("%s p=%g T=%g (%s): %v", c.fluid, p, c.T, c.why, err)
+			continue
+		}
+		if s.Phase != c.phase {
+			t.Errorf("%s p=%g T=%g (%s): phase %v, want %v", c.fluid, p, c.T, c.why, s.Phase, c.phase)
+		}
+		if sat.p > 0 {
+			if c.phase == thermo.PhaseLiquid && !(s.Rho >= sat.rhoL) || c.phase == thermo.PhaseVapour && !(s.Rho <= sat.rhoV) {
+				t.Errorf("%s p=%g T=%g: rho %g outside the branch (rhoL %g, rhoV %g)", c.fluid, p, c.T, s.Rho, sat.rhoL, sat.rhoV)
+			}
+		}
+		if c.fluid == "water-iapws95" && c.phase == thermo.PhaseLiquid && s.Rho < 990 {
+			t.Errorf("water at 300 K, 10 kPa: rho %g, want about 996.5 kg/m3 (IAPWS-95 Table 7 neighbourhood)", s.Rho)
+		}
+	}
+	// A root on the wrong side is an error, never a number: asking the
+	// density solver for the vapour branch above the vapour spinodal.
+	f := mustNew(t, "water-iapws95")
+	var tp tauPart
+	f.q.tauPart(f.tr/300, &tp)
+	if _, err := f.density(&tp, 300, 1e6, thermo.PhaseVapour, nil, 0); !errors.Is(err, thermo.ErrPhase) && !errors.Is(err, thermo.ErrNoConvergence) {
+		t.Errorf("vapour root of water at 300 K, 1 MPa: err = %v, want ErrPhase or ErrNoConvergence", err)
+	}
+}
+
+// TestErrors: bad input gives typed errors, never a panic or NaN.
+func TestErrors(t *testing.T) {
+	f := mustNew(t, "ammonia")
+	air := mustNew(t, "air-helmholtz")
+	cases := []struct {
+		name string
+		fl   *Fluid
+		pair thermo.Pair
+		a, b float64
+		want error
+	}{
+		{"NaN", f, thermo.PT, math.NaN(), 300, thermo.ErrNotFinite},
+		{"Inf", f, thermo.PH, 1e5, math.Inf(1), thermo.ErrNotFinite},
+		{"T below triple", f, thermo.PT, 1e5, 150, thermo.ErrOutOfRange},
+		{"T above max", f, thermo.PT, 1e5, 800, thermo.ErrOutOfRange},
+		{"p above max", f, thermo.PT, 2e9, 300, thermo.ErrOutOfRange},
+		{"p zero", f, thermo.PT, 0, 300, thermo.ErrOutOfRange},
+		{"p negative", f, thermo.PS, -1, 300, thermo.ErrOutOfRange},
+		{"x above 1", f, thermo.TX, 250, 1.5, thermo.ErrOutOfRange},
+		{"TX above Tc", f, thermo.TX, 420, 0.5, thermo.ErrOutOfRange},
+		{"PX above pc", f, thermo.PX, 12e6, 0.5, thermo.ErrOutOfRange},
+		{"PX below triple", f, thermo.PX, 100, 0.5, thermo.ErrOutOfRange},
+		{"h far too low", f, thermo.PH, 1e6, -1e7, thermo.ErrOutOfRange},
+		{"h far too high", f, thermo.PH, 1e6, 1e8, thermo.ErrOutOfRange},
+		{"s far too high", f, thermo.PS, 1e6, 1e6, thermo.ErrOutOfRange},
+		{"HS", f, thermo.HS, 1e6, 5000, thermo.ErrUnsupported},
+		{"bad pair", f, thermo.Pair(99), 1, 1, thermo.ErrUnsupported},
+		{"air PX", air, thermo.PX, 1e6, 0.5, thermo.ErrUnsupported},
+		{"air between dew and bubble", air, thermo.PT, 1.15e6, 109.4, thermo.ErrPhase},
+		{"air PH between dew and bubble", air, thermo.PH, 1.15e6, 0, thermo.ErrPhase},
+		{"saturation point", f, thermo.PT, mustSatP(t, f, 250), 250, thermo.ErrPhase},
+	}
+	for _, c := range cases {
+		s, err := c.fl.Flash(c.pair, c.a, c.b)
+		if !errors.Is(err, c.want) {
+			t.Errorf("%s: err = %v, want %v (state %+v)", c.name, err, c.want, s)
+		}
+		if errors.Is(c.want, thermo.ErrOutOfRange) {
+			var re *thermo.RangeError
+			if !errors.As(err, &re) {
+				t.Errorf("%s: %v is not a *thermo.RangeError", c.name, err)
+			}
+		}
+	}
+	if _, err := air.SatP(100); !errors.Is(err, thermo.ErrUnsupported) {
+		t.Errorf("air SatP: %v", err)
+	}
+	if _, err := New("unobtainium"); err == nil {
+		t.Error("unknown fluid accepted")
+	}
+	if _, _, err := f.Parts(-1, 1); err == nil {
+		t.Error("negative tau accepted")
+	}
+}
+
+func mustSatP(t *testing.T, f *Fluid, T float64) float64 {
+	p, err := f.SatP(T)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// TestConcurrent runs flashes from several goroutines (run with -race).
+func TestConcurrent(t *testing.T) {
+	f := mustNew(t, "ammonia")
+	want, err := f.Flash(thermo.PS, 1e6, 5500)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var wg sync.WaitGroup
+	for g := 0; g < 4; g++ {
+		wg.Add(1)
+		go func(g int) {
+			defer wg.Done()
+			for i := 0; i < 50; i++ {
+				p := 1e6 * (1 + float64(i%3))
+				s, err := f.Flash(thermo.PS, p, 5500)
+				if err != nil {
+					t.Error(err)
+					return
+				}
+				if p == 1e6 && s.T != want.T {
+					t.Errorf("goroutine %d: T %v want %v", g, s.T, want.T)
+				}
+			}
+		}(g)
+	}
+	wg.Wait()
+}
+
+// FuzzFlash: any float input gives an error or a finite state, never a panic.
+func FuzzFlash(f *testing.F) {
+	f.Add(uint8(1), 1e5, 300.0, uint8(0))
+	f.Add(uint8(2), 1e6, 1.5e6, uint8(0))
+	f.Add(uint8(3), 5e6, 5000.0, uint8(6))
+	f.Add(uint8(4), 2e5, 0.5, uint8(3))
+	f.Add(uint8(5), 280.0, 0.1, uint8(6))
+	f.Add(uint8(1), 22.064e6, 647.096, uint8(6))
+	f.Add(uint8(1), 7.3773e6, 304.1282, uint8(3))
+	f.Add(uint8(2), 1e-300, -1e300, uint8(1))
+	f.Add(uint8(3), 1e9, 1e-3, uint8(5))
+	f.Add(uint8(6), 1e6, 2e3, uint8(2))
+	names := append(pureNames, "air-helmholtz")
+	f.Fuzz(func(t *testing.T, pair uint8, a, b float64, fluid uint8) {
+		fl := mustNew(t, names[int(fluid)%len(names)])
+		s, err := fl.Flash(thermo.Pair(pair%8), a, b)
+		if err == nil && !s.Finite() {
+			t.Fatalf("non-finite state without error: %+v", s)
+		}
+		if err == nil && (s.Rho <= 0 || s.T <= 0 || s.P <= 0) {
+			t.Fatalf("non-physical state: %+v", s)
+		}
+	})
+}
+
+// TestAirTwoPhaseBand: pseudo-pure air has no two-phase model; an enthalpy
+// between the bubble-point liquid and the dew-point vapour at one pressure
+// (bubble and dew temperatures from CoolProp's ancillaries in air.json) is
+// an ErrPhase error, while values just outside give single-phase states.
+func TestAirTwoPhaseBand(t *testing.T) {
+	f := mustNew(t, "air-helmholtz")
+	p := 1.15e6
+	Tb, okb := f.ancInvert(&f.ancPL, p)
+	Td, okd := f.ancInvert(&f.ancPV, p)
+	if !okb || !okd || !(Tb < Td) {
+		t.Fatalf("bubble %g K, dew %g K", Tb, Td)
+	}
+	l, err := f.Flash(thermo.PT, p, Tb)
+	if err != nil || l.Phase != thermo.PhaseLiquid {
+		t.Fatalf("bubble state: %v %v", l.Phase, err)
+	}
+	v, err := f.Flash(thermo.PT, p, Td)
+	if err != nil || v.Phase != thermo.PhaseVapour {
+		t.Fatalf("dew state: %v %v", v.Phase, err)
+	}
+	if _, err := f.Flash(thermo.PH, p, 0.5*(l.H+v.H)); !errors.Is(err, thermo.ErrPhase) {
+		t.Errorf("mid-band h: %v, want ErrPhase", err)
+	}
+	for _, c := range []struct {
+		h     float64
+		phase thermo.Phase
+	}{{l.H - 1000, thermo.PhaseLiquid}, {v.H + 1000, thermo.PhaseVapour}} {
+		s, err := f.Flash(thermo.PH, p, c.h)
+		if err != nil || s.Phase != c.phase || relDiff(s.H, c.h) > 1e-9 {
+			t.Errorf("h = %g: %v %v (h %g)", c.h, s.Phase, err, s.H)
+		}
+	}
+}
