@@ -427,11 +427,11 @@ func TestAirTwoPhaseBand(t *testing.T) {
 	if !okb || !okd || !(Tb < Td) {
 		t.Fatalf("bubble %g K, dew %g K", Tb, Td)
 	}
-	l, err := f.Flash(thermo.PT, p, Tb)
+	l, err := f.Flash(thermo.PT, p, Tb*(1-1e-9))
 	if err != nil || l.Phase != thermo.PhaseLiquid {
 		t.Fatalf("bubble state: %v %v", l.Phase, err)
 	}
-	v, err := f.Flash(thermo.PT, p, Td)
+	v, err := f.Flash(thermo.PT, p, Td*(1+1e-9))
 	if err != nil || v.Phase != thermo.PhaseVapour {
 		t.Fatalf("dew state: %v %v", v.Phase, err)
 	}
