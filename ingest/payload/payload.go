@@ -5,19 +5,19 @@
 //
 // # JSON sample
 //
-//	{"tag": "T1.PT101", "ts": "2026-12-01T10:00:00.250Z", "value": 12.5,
-//	 "quality": "good", "status": 0}
+//		{"tag": "T1.PT101", "ts": "2026-12-01T10:00:00.250Z", "value": 12.5,
+//		 "quality": "good", "status": 0}
 //
-//   - tag (string, required): the source tag name looked up in the tag map.
-//   - value (number or boolean, required): the reading in the unit configured
-//     for the tag; true/false are 1/0. null, strings, objects are errors.
-//   - ts (optional): source timestamp, either an RFC 3339 string (fraction
-//     of seconds allowed) or a number of Unix milliseconds (fraction
-//     allowed). Missing: the receive time is used.
-//   - quality (optional string): "good", "uncertain" or "bad".
-//   - status (optional unsigned integer < 2^32): an OPC UA StatusCode; sets
-//     the quality from its severity bits unless quality is also given.
-//   - any other key is ignored.
+//	  - tag (string, required): the source tag name looked up in the tag map.
+//	  - value (number or boolean, required): the reading in the unit configured
+//	    for the tag; true/false are 1/0. null, strings, objects are errors.
+//	  - ts (optional): source timestamp, either an RFC 3339 string (fraction
+//	    of seconds allowed) or a number of Unix milliseconds (fraction
+//	    allowed). Missing: the receive time is used.
+//	  - quality (optional string): "good", "uncertain" or "bad".
+//	  - status (optional unsigned integer < 2^32): an OPC UA StatusCode; sets
+//	    the quality from its severity bits unless quality is also given.
+//	  - any other key is ignored.
 //
 // # JSON batch
 //

@@ -1,0 +1,170 @@
+// Package quality runs the per-tag data-quality checks on SI values: source
+// status, plausible range, stuck, spike (Hampel filter), rate of change and
+// staleness. Each finding is a reason code from package ingest.
+package quality
+
+import (
+	"math"
+	"sort"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+)
+
+// HampelScale makes the median absolute deviation a consistent estimator of
+// the standard deviation for normally distributed data: 1/Φ⁻¹(3/4) =
+// 1.4826 (common practice; Hampel 1974, Rousseeuw & Croux 1993).
+const HampelScale = 1.4826
+
+// Params are the compiled (SI) settings of one tag's checks. Zero values
+// switch a check off, except SpikeK which defaults to 3.
+type Params struct {
+	Min, Max        float64       // plausible range in SI; both 0 means no range check
+	StuckPeriod     time.Duration // stuck when no change beyond StuckTolerance for this long
+	StuckTolerance  float64       // SI (a difference)
+	SpikeWindow     int           // Hampel window: number of previous values (>= 3 to enable)
+	SpikeK          float64       // Hampel threshold in scaled MADs (default 3)
+	SpikeFloor      float64       // SI; the threshold is never below this (MAD is 0 on flat data)
+	MaxRate         float64       // SI per second; 0 = off
+	StaleAfter      time.Duration // stale when the newest sample is older than this at evaluation
+	RejectUncertain bool          // drop samples with uncertain source quality instead of flagging
+}
+
+// Checker holds the state of one tag. Not safe for concurrent use.
+type Checker struct {
+	P Params
+
+	hist    []float64 // ring of recent values for the Hampel filter
+	histPos int
+	histN   int
+	scratch []float64
+
+	hasLast  bool
+	lastT    time.Time // newest sample time (any quality)
+	lastUseT time.Time // newest used sample
+	lastUseV float64
+	hasUse   bool
+
+	stuckRef   float64
+	stuckSince time.Time
+	hasStuck   bool
+}
+
+// New returns a checker with parameters p.
+func New(p Params) *Checker {
+	if p.SpikeK == 0 {
+		p.SpikeK = 3
+	}
+	c := &Checker{P: p}
+	if p.SpikeWindow >= 3 {
+		c.hist = make([]float64, p.SpikeWindow)
+		c.scratch = make([]float64, p.SpikeWindow)
+	}
+	return c
+}
+
+// Check judges one sample (value v in SI at time t, source quality q).
+// inOrder is false for a sample older than the tag's newest one; then the
+// time-dependent checks (rate, stuck) are skipped and the state is not
+// advanced. use reports whether the value may enter a time-weighted average.
+func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) (use bool, rs ingest.Reasons) {
+	use = true
+	switch q {
+	case ingest.Bad:
+		rs = rs.Add(ingest.ReasonStatusBad)
+		use = false
+	case ingest.Uncertain:
+		rs = rs.Add(ingest.ReasonStatusUncertain)
+		if c.P.RejectUncertain {
+			use = false
+		}
+	}
+	if q == ingest.Bad {
+		if inOrder {
+			c.lastT, c.hasLast = t, true
+		}
+		return use, rs
+	}
+	if (c.P.Min != 0 || c.P.Max != 0) && (v < c.P.Min || v > c.P.Max) {
+		rs = rs.Add(ingest.ReasonOutOfRange)
+		use = false
+	}
+	if use && c.hist != nil && c.histN >= 3 {
+		med, mad := c.medianMAD()
+		thr := c.P.SpikeK * HampelScale * mad
+		if thr < c.P.SpikeFloor {
+			thr = c.P.SpikeFloor
+		}
+		if math.Abs(v-med) > thr {
+			rs = rs.Add(ingest.ReasonSpike)
+			use = false
+		}
+	}
+	if inOrder && use && c.P.MaxRate > 0 && c.hasUse {
+		if dt := t.Sub(c.lastUseT).Seconds(); dt > 0 && math.Abs(v-c.lastUseV)/dt > c.P.MaxRate {
+			rs = rs.Add(ingest.ReasonRateOfChange)
+			use = false
+		}
+	}
+	// The Hampel history takes every in-range value, also spikes, so that a
+	// genuine step becomes the new median after half a window.
+	if c.hist != nil && !rs.Has(ingest.ReasonOutOfRange) {
+		c.hist[c.histPos] = v
+		c.histPos = (c.histPos + 1) % len(c.hist)
+		if c.histN < len(c.hist) {
+			c.histN++
+		}
+	}
+	if !inOrder {
+		return use, rs
+	}
+	c.lastT, c.hasLast = t, true
+	if use {
+		c.lastUseT, c.lastUseV, c.hasUse = t, v, true
+		if c.P.StuckPeriod > 0 {
+			if !c.hasStuck || math.Abs(v-c.stuckRef) > c.P.StuckTolerance {
+				c.stuckRef, c.stuckSince, c.hasStuck = v, t, true
+			} else if t.Sub(c.stuckSince) >= c.P.StuckPeriod {
+				rs = rs.Add(ingest.ReasonStuck)
+			}
+		}
+	}
+	return use, rs
+}
+
+func (c *Checker) medianMAD() (float64, float64) {
+	s := c.scratch[:c.histN]
+	copy(s, c.hist[:c.histN])
+	med := median(s)
+	for i := range s {
+		s[i] = math.Abs(s[i] - med)
+	}
+	return med, median(s)
+}
+
+func median(s []float64) float64 {
+	sort.Float64s(s)
+	n := len(s)
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
+}
+
+// AtEvaluation returns the reasons that hold at evaluation time now: stale
+// (newest sample older than StaleAfter, or none at all) and stuck (no change
+// beyond the tolerance for StuckPeriod up to now, which also catches
+// report-by-exception tags that stopped reporting a frozen value).
+func (c *Checker) AtEvaluation(now time.Time) ingest.Reasons {
+	var rs ingest.Reasons
+	if c.P.StaleAfter > 0 && (!c.hasLast || now.Sub(c.lastT) > c.P.StaleAfter) {
+		rs = rs.Add(ingest.ReasonStale)
+	}
+	if c.P.StuckPeriod > 0 && c.hasStuck && now.Sub(c.stuckSince) >= c.P.StuckPeriod {
+		rs = rs.Add(ingest.ReasonStuck)
+	}
+	return rs
+}
+
+// Last returns the time of the newest in-order sample.
+func (c *Checker) Last() (time.Time, bool) { return c.lastT, c.hasLast }
