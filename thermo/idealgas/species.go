@@ -157,19 +157,19 @@ func (s *Species) coeffs(T float64) *[7]float64 {
 }
 
 // CpR returns cp/R (dimensionless, molar) at T in K. T is not range checked.
-func (s *Species) CpR(T float64) float64 {
+func (s Species) CpR(T float64) float64 {
 	a := s.coeffs(T)
 	return a[0] + T*(a[1]+T*(a[2]+T*(a[3]+T*a[4])))
 }
 
 // HRT returns h/(R T) (molar, including the enthalpy of formation) at T in K.
-func (s *Species) HRT(T float64) float64 {
+func (s Species) HRT(T float64) float64 {
 	a := s.coeffs(T)
 	return a[0] + T*(a[1]/2+T*(a[2]/3+T*(a[3]/4+T*a[4]/5))) + a[5]/T
 }
 
 // SR returns s0/R at T in K and P0 (molar).
-func (s *Species) SR(T float64) float64 {
+func (s Species) SR(T float64) float64 {
 	a := s.coeffs(T)
 	return a[0]*math.Log(T) + T*(a[1]+T*(a[2]/2+T*(a[3]/3+T*a[4]/4))) + a[6]
 }
