@@ -37,10 +37,15 @@ func (m *Mixture) checkP(p float64) error {
 
 // state evaluates every property at (p, T), both already range checked.
 func (m *Mixture) state(p, T float64) (thermo.State, error) {
+	return m.stateL(p, math.Log(p), T, math.Log(T))
+}
+
+// stateL is state with ln p and ln T supplied.
+func (m *Mixture) stateL(p, lnp, T, lnT float64) (thermo.State, error) {
 	sg := m.seg(T)
 	cp := sg.cpAt(T)
 	h := sg.h(T)
-	s := sg.sigma(T) - m.rs*math.Log(p)
+	s := sg.sigmaL(T, lnT) - m.rs*lnp
 	rT := m.rs * T
 	cv := cp - m.rs
 	st := thermo.State{
@@ -99,11 +104,12 @@ func (m *Mixture) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 		if err := m.checkP(a); err != nil {
 			return thermo.State{}, err
 		}
-		T, err := m.tFromSigma(b+m.rs*math.Log(a), a, b)
+		lnp := math.Log(a)
+		T, lnT, err := m.tFromSigma(b+m.rs*lnp, a, b)
 		if err != nil {
 			return thermo.State{}, err
 		}
-		return m.state(a, T)
+		return m.stateL(a, lnp, T, lnT)
 	case thermo.HS:
 		if !finite(a) || !finite(b) {
 			return thermo.State{}, thermo.CheckFinite(m.name, []string{"h", "s"}, a, b)
@@ -163,7 +169,7 @@ func (m *Mixture) tFromH(h float64) (float64, error) {
 	if h > m.hInv.hi {
 		return 0, thermo.Above(m.name, "h", "J/kg", h, m.hInv.hi, fmt.Sprintf("h at the highest temperature %g K", m.tmax))
 	}
-	T, ok := m.solveT(h, false)
+	T, _, ok := m.solveT(h, false)
 	if !ok {
 		return 0, fmt.Errorf("%s: T from h = %g J/kg: %w", m.name, h, thermo.ErrNoConvergence)
 	}
@@ -171,24 +177,24 @@ func (m *Mixture) tFromH(h float64) (float64, error) {
 }
 
 // tFromSigma solves sigma(T) = sigma for T; p and s are only for messages.
-func (m *Mixture) tFromSigma(sigma, p, s float64) (float64, error) {
+func (m *Mixture) tFromSigma(sigma, p, s float64) (T, lnT float64, err error) {
 	if sigma < m.sInv.lo && m.sInv.lo-sigma <= edgeTol*math.Abs(m.sInv.lo) {
-		return m.tmin, nil
+		return m.tmin, math.Log(m.tmin), nil
 	}
 	if sigma > m.sInv.hi && sigma-m.sInv.hi <= edgeTol*math.Abs(m.sInv.hi) {
-		return m.tmax, nil
+		return m.tmax, math.Log(m.tmax), nil
 	}
 	if sigma < m.sInv.lo {
-		return 0, thermo.Below(m.name, "s", "J/(kg K)", s, m.sInv.lo-m.rs*math.Log(p), fmt.Sprintf("s at p = %g Pa and the lowest temperature %g K", p, m.tmin))
+		return 0, 0, thermo.Below(m.name, "s", "J/(kg K)", s, m.sInv.lo-m.rs*math.Log(p), fmt.Sprintf("s at p = %g Pa and the lowest temperature %g K", p, m.tmin))
 	}
 	if sigma > m.sInv.hi {
-		return 0, thermo.Above(m.name, "s", "J/(kg K)", s, m.sInv.hi-m.rs*math.Log(p), fmt.Sprintf("s at p = %g Pa and the highest temperature %g K", p, m.tmax))
+		return 0, 0, thermo.Above(m.name, "s", "J/(kg K)", s, m.sInv.hi-m.rs*math.Log(p), fmt.Sprintf("s at p = %g Pa and the highest temperature %g K", p, m.tmax))
 	}
-	T, ok := m.solveT(sigma, true)
+	T, lnT, ok := m.solveT(sigma, true)
 	if !ok {
-		return 0, fmt.Errorf("%s: T from p = %g Pa, s = %g J/(kg K): %w", m.name, p, s, thermo.ErrNoConvergence)
+		return 0, 0, fmt.Errorf("%s: T from p = %g Pa, s = %g J/(kg K): %w", m.name, p, s, thermo.ErrNoConvergence)
 	}
-	return T, nil
+	return T, lnT, nil
 }
 
 // H returns the specific enthalpy in J/kg at T in K (independent of
@@ -238,7 +244,8 @@ func (m *Mixture) TFromPS(p, s float64) (float64, error) {
 	if err := m.checkP(p); err != nil {
 		return 0, err
 	}
-	return m.tFromSigma(s+m.rs*math.Log(p), p, s)
+	T, _, err := m.tFromSigma(s+m.rs*math.Log(p), p, s)
+	return T, err
 }
 
 // IsentropicT returns the isentropic end temperature T2s in K: the
@@ -258,8 +265,11 @@ func (m *Mixture) IsentropicT(p1, T1, p2 float64) (float64, error) {
 	if err := m.checkP(p2); err != nil {
 		return 0, err
 	}
-	s1 := m.seg(T1).sigma(T1) - m.rs*math.Log(p1)
-	return m.tFromSigma(s1+m.rs*math.Log(p2), p2, s1)
+	// sigma(T2) = sigma(T1) + Rs ln(p2/p1).
+	sig1 := m.seg(T1).sigma(T1)
+	lr := math.Log(p2 / p1)
+	T2, _, err := m.tFromSigma(sig1+m.rs*lr, p2, sig1-m.rs*math.Log(p1))
+	return T2, err
 }
 
 var _ thermo.Fluid = (*Mixture)(nil)

@@ -290,8 +290,13 @@ func (sg *segment) h(T float64) float64 {
 
 // sigma is s at unit pressure (1 Pa): s(T, p) = sigma(T) - Rs ln p.
 func (sg *segment) sigma(T float64) float64 {
+	return sg.sigmaL(T, math.Log(T))
+}
+
+// sigmaL is sigma with ln T supplied.
+func (sg *segment) sigmaL(T, lnT float64) float64 {
 	c := &sg.sc
-	return sg.cp[0]*math.Log(T) + T*(c[0]+T*(c[1]+T*(c[2]+T*c[3]))) + sg.s0
+	return sg.cp[0]*lnT + T*(c[0]+T*(c[1]+T*(c[2]+T*c[3]))) + sg.s0
 }
 
 // seg returns the interval containing T (the last one for T at or above
@@ -346,26 +351,29 @@ func (tb *invTable) guess(v float64) float64 {
 
 // solveT finds T in [tmin, tmax] with h(T) = target (entropy false) or
 // sigma(T) = target (entropy true) by Newton's method safeguarded by
-// bisection. The target must lie within the tabulated range.
-func (m *Mixture) solveT(target float64, entropy bool) (float64, bool) {
+// bisection. The target must lie within the tabulated range. For entropy
+// it also returns ln T (from the last logarithm and a series in the last
+// step, |u| <= 1e-6, truncation below 1e-24); otherwise lnT is 0.
+func (m *Mixture) solveT(target float64, entropy bool) (T, lnT float64, ok bool) {
 	tb := &m.hInv
 	if entropy {
 		tb = &m.sInv
 	}
 	lo, hi := m.tmin, m.tmax
-	T := tb.guess(target)
+	T = tb.guess(target)
 	for it := 0; it < 60; it++ {
 		sg := m.seg(T)
 		var r, d float64
 		if entropy {
-			r = sg.sigma(T) - target
+			lnT = math.Log(T)
+			r = sg.sigmaL(T, lnT) - target
 			d = sg.cpAt(T) / T
 		} else {
 			r = sg.h(T) - target
 			d = sg.cpAt(T)
 		}
 		if r == 0 {
-			return T, true
+			return T, lnT, true
 		}
 		if r > 0 {
 			hi = T
@@ -381,12 +389,15 @@ func (m *Mixture) solveT(target float64, entropy bool) (float64, bool) {
 		// cp'/cp (h), so once the step is below 1e-6 T the error left is
 		// below about 1e-12 T (5e-13 T for s) and no further evaluation
 		// is needed. Tests hold T to 1e-10 and s to 1e-9 relative.
-		if math.Abs(tn-T) <= 1e-6*T {
-			return tn, true
+		if u := (tn - T) / T; math.Abs(u) <= 1e-6 {
+			if entropy {
+				lnT += u * (1 - u*(0.5-u*(1.0/3)))
+			}
+			return tn, lnT, true
 		}
 		T = tn
 	}
-	return T, false
+	return T, lnT, false
 }
 
 // Name returns the config name of the fluid ("ideal-gas" unless set by a
