@@ -259,20 +259,32 @@ func powi(x float64, n int) float64 {
 	return r
 }
 
+// tauPow returns tau^t: by multiplication for integer and half-integer t
+// (most exponents of these equations), else exp(t ln tau).
+func tauPow(tau, lnTau, t float64) float64 {
+	if t == math.Trunc(t) && math.Abs(t) <= 64 {
+		if t >= 0 {
+			return powi(tau, int(t))
+		}
+		return 1 / powi(tau, int(-t))
+	}
+	if t2 := 2 * t; t2 == math.Trunc(t2) && math.Abs(t) <= 64 {
+		st := math.Sqrt(tau)
+		if t >= 0 {
+			return powi(tau, int(t-0.5)) * st
+		}
+		return 1 / (powi(tau, int(-t-0.5)) * st)
+	}
+	return math.Exp(t * lnTau)
+}
+
 // tauPart fills the tau-only factors of the residual terms.
 func (q *eos) tauPart(tau float64, tp *tauPart) {
 	tp.tau = tau
 	lnTau := math.Log(tau)
 	var ut [maxUniqT]float64
 	for j, t := range q.uniq {
-		switch t {
-		case 0:
-			ut[j] = 1
-		case 1:
-			ut[j] = tau
-		default:
-			ut[j] = math.Exp(t * lnTau)
-		}
+		ut[j] = tauPow(tau, lnTau, t)
 	}
 	for k, n := range q.pN {
 		tp.pw[k] = n * ut[q.pTi[k]]
@@ -389,25 +401,43 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 	}
 	qq := dm * dm
 	tm := tau - 1
+	lnq := math.Inf(-1)
+	if qq > 0 {
+		lnq = math.Log(qq)
+	}
+	// Values shared by consecutive terms with equal a, beta, A, B (both
+	// IAPWS-95 terms; the first two Span-Wagner terms).
+	pa, pbeta, pA, pB := math.NaN(), math.NaN(), math.NaN(), math.NaN()
+	var qib1, qa1, qib, theta, Delta, lnDelta, dOver, Dd, Ddd float64
 	for k, n := range q.nN {
 		a, b, beta, A, B, C, D := q.nA[k], q.nB[k], q.nBeta[k], q.nACap[k], q.nBCap[k], q.nC[k], q.nD[k]
-		ib := 1 / (2 * beta)
-		var qib1, qa1, qib float64 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
-		if qq > 0 {
-			qib1 = math.Pow(qq, ib-1)
-			qa1 = math.Pow(qq, a-1)
-			qib = qib1 * qq
+		ex := C*qq + D*tm*tm
+		if ex > 200 {
+			// psi < 1e-86: the term and its derivatives vanish in double
+			// precision next to the O(1) remainder of alpha_r.
+			continue
 		}
-		theta := -tm + A*qib
-		Delta := theta*theta + B*qa1*qq
-		psi := math.Exp(-C*qq - D*tm*tm)
-		// Delta derivatives with respect to delta.
-		dOver := A*theta*(2/beta)*qib1 + 2*B*a*qa1 // Delta_d/(delta-1)
-		Dd := dm * dOver
-		Ddd := dOver + 4*B*a*(a-1)*qa1 + 2*A*A/(beta*beta)*qib1*qib1*qq + A*theta*(4/beta)*(ib-1)*qib1
+		psi := math.Exp(-ex)
+		ib := 1 / (2 * beta)
+		if a != pa || beta != pbeta || A != pA || B != pB {
+			pa, pbeta, pA, pB = a, beta, A, B
+			qib1, qa1, qib = 0, 0, 0 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
+			if qq > 0 {
+				qib1 = math.Exp((ib - 1) * lnq)
+				qa1 = math.Exp((a - 1) * lnq)
+				qib = qib1 * qq
+			}
+			theta = -tm + A*qib
+			Delta = theta*theta + B*qa1*qq
+			lnDelta = math.Log(Delta)
+			// Delta derivatives with respect to delta.
+			dOver = A*theta*(2/beta)*qib1 + 2*B*a*qa1 // Delta_d/(delta-1)
+			Dd = dm * dOver
+			Ddd = dOver + 4*B*a*(a-1)*qa1 + 2*A*A/(beta*beta)*qib1*qib1*qq + A*theta*(4/beta)*(ib-1)*qib1
+		}
 		var Db, Db1, Db2 float64 // Delta^b, Delta^(b-1), Delta^(b-2)
 		if Delta > 0 {
-			Db = math.Pow(Delta, b)
+			Db = math.Exp(b * lnDelta)
 			Db1 = Db / Delta
 			Db2 = Db1 / Delta
 		}

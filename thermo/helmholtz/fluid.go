@@ -120,12 +120,12 @@ func newAncillary(a jsonAnc, scale float64) (ancillary, error) {
 
 func (a *ancillary) eval(T float64) float64 {
 	th := 1 - T/a.tr
-	if th < 0 {
-		th = 0
-	}
 	var s float64
-	for i, n := range a.n {
-		s += n * math.Pow(th, a.t[i])
+	if th > 0 {
+		lth := math.Log(th)
+		for i, n := range a.n {
+			s += n * math.Exp(a.t[i]*lth)
+		}
 	}
 	switch a.kind {
 	case 0:
@@ -165,6 +165,7 @@ type Fluid struct {
 	checks map[string]jsonCheck
 
 	satTriple satPoint // Maxwell solution at T_min
+	satRef    satPoint // Maxwell solution at 0.99 Tc, start of the near-critical march
 	ancMargin float64  // relative band around the ancillary p_sat inside which the Maxwell solution decides the phase
 	ancTolL   float64  // relative widening of the rhoL ancillary for the liquid-branch bound
 	ancTolV   float64  // relative widening of the rhoV ancillary for the vapour-branch bound
@@ -373,6 +374,11 @@ func (f *Fluid) calibrate() error {
 			devV = max(devV, math.Abs(f.ancRV.eval(T)/sp.rhoV-1))
 		}
 	}
+	ref, err := f.maxwell(0.99*f.tc, 0, 0)
+	if err != nil {
+		return fmt.Errorf("helmholtz: %s: saturation at 0.99 Tc: %w", f.name, err)
+	}
+	f.satRef = ref
 	f.ancMargin = max(3*dev, 5*f.ancP.maxErr, 0.002)
 	f.ancTolL = 3*devL + 0.005
 	f.ancTolV = 3*devV + 0.005

@@ -1,6 +1,7 @@
 package helmholtz
 
 import (
+	"errors"
 	"fmt"
 	"math"
 
@@ -19,6 +20,36 @@ type satPoint struct {
 // J = delta (1 + delta ar_d) and K = delta ar_d + ar + ln delta; rl0 and rv0
 // (kg/m3) are starting densities (<= 0: from the ancillaries).
 func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
+	sp, err := f.maxwellCore(T, rl0, rv0)
+	if err == nil || !errors.Is(err, thermo.ErrNoConvergence) || !(f.satRef.T > 0) || T <= f.satRef.T {
+		return sp, err
+	}
+	// Near the critical point: march from the solution at 0.99 Tc towards
+	// T, dividing Tc - T by 3 per step, with starting densities from the
+	// scaling law rho - rho_c ~ (Tc - T)^0.35.
+	cur := f.satRef
+	for {
+		dCur := f.tc - cur.T
+		dNext := max(dCur/3, f.tc-T)
+		r := math.Pow(dNext/dCur, 0.35)
+		rl := f.rhoc + (cur.rhoL-f.rhoc)*r
+		rv := f.rhoc - (f.rhoc-cur.rhoV)*r
+		Tn := f.tc - dNext
+		if dNext == f.tc-T {
+			Tn = T
+		}
+		next, err := f.maxwellCore(Tn, rl, rv)
+		if err != nil {
+			return satPoint{}, err
+		}
+		if Tn == T {
+			return next, nil
+		}
+		cur = next
+	}
+}
+
+func (f *Fluid) maxwellCore(T, rl0, rv0 float64) (satPoint, error) {
 	if f.pseudoPure {
 		return satPoint{}, fmt.Errorf("%s: pseudo-pure fluid has no Maxwell saturation (bubble and dew states differ): %w", f.name, thermo.ErrUnsupported)
 	}
@@ -31,8 +62,12 @@ func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
 	var tp tauPart
 	f.q.tauPart(f.tr/T, &tp)
 	if rl0 <= 0 || rv0 <= 0 {
-		rl0, rv0 = f.ancRL.eval(T), f.ancRV.eval(T)
-		if T > f.ancRL.tr || !(rl0 > rv0) {
+		// Ancillaries at the corresponding temperature: they were fitted to
+		// the default equation, whose critical temperature may differ
+		// (ammonia-1993: 405.4 K against 405.56 K).
+		rl0 = f.ancRL.eval(T*f.ancRL.tr/f.tc) * f.rhoc / f.ancRL.r
+		rv0 = f.ancRV.eval(T*f.ancRV.tr/f.tc) * f.rhoc / f.ancRV.r
+		if !(rl0 > rv0) {
 			rl0, rv0 = 1.05*f.rhoc, 0.95*f.rhoc
 		}
 	}
@@ -50,13 +85,20 @@ func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
 		}
 		stepL := ((KV-KL)*JdV - (JV-JL)*KdV) / det
 		stepV := ((KV-KL)*JdL - (JV-JL)*KdL) / det
+		// Damp steps that would cross or nearly merge the two phases (the
+		// trivial solution dL = dV also satisfies both equations).
 		g := 1.0
-		for g > 1e-3 && (dL+g*stepL <= 0 || dV+g*stepV <= 0 || dL+g*stepL <= dV+g*stepV) {
+		gap := dL - dV
+		for g > 1e-3 && (dL+g*stepL <= 0 || dV+g*stepV <= 0 || (dL+g*stepL)-(dV+g*stepV) < 0.5*gap ||
+			math.Abs(g*stepV) > 0.5*dV) {
 			g /= 2
 		}
 		dL += g * stepL
 		dV += g * stepV
-		if math.Abs(stepL) <= 1e-14*dL && math.Abs(stepV) <= 1e-13*dV {
+		// Newton converges quadratically: after a relative step of 1e-10
+		// the error is far below rounding. (A tighter test stalls on the
+		// rounding noise of J and K near the critical point.)
+		if math.Abs(stepL) <= 1e-10*dL && math.Abs(stepV) <= 1e-10*dV {
 			rL = f.q.residual(&tp, dL, false)
 			rV = f.q.residual(&tp, dV, false)
 			RT := f.r * T
