@@ -78,3 +78,39 @@ func TestFastEntryPoints(t *testing.T) {
 		}
 	}
 }
+
+// TestFastPolyMatchesGeneric: the generated straight-line sums (fastpoly.go)
+// equal the generic evaluation of the same tables (region1.go) to
+// round-off, over the range of the reduced variables.
+func TestFastPolyMatchesGeneric(t *testing.T) {
+	type pair struct {
+		name string
+		fast func(a, b float64) float64
+		q    *gpoly
+		a, b [2]float64 // ranges of the reduced variables
+	}
+	for _, c := range []pair{
+		{"t1ph", ft1ph, t1phPoly, [2]float64{0, 100}, [2]float64{1, 2.7}},
+		{"t1ps", ft1ps, t1psPoly, [2]float64{0, 100}, [2]float64{2, 5.8}},
+		{"t2aph", ft2aph, t2aphPoly, [2]float64{0, 4}, [2]float64{-0.9, 0.1}},
+		{"t2bph", ft2bph, t2bphPoly, [2]float64{2, 98}, [2]float64{-1.2, -0.5}},
+		{"t2cph", ft2cph, t2cphPoly, [2]float64{31, 125}, [2]float64{-0.5, 0.3}},
+		{"t2aps", ft2aps, t2apsPoly, [2]float64{0.1, 1.42}, [2]float64{1, 3}},
+		{"t2bps", ft2bps, t2bpsPoly, [2]float64{4, 100}, [2]float64{0, 2.6}},
+		{"t2cps", ft2cps, t2cpsPoly, [2]float64{16, 100}, [2]float64{0, 0.3}},
+	} {
+		for i := 0; i <= 20; i++ {
+			for j := 0; j <= 20; j++ {
+				a := c.a[0] + (c.a[1]-c.a[0])*float64(i)/20
+				b := c.b[0] + (c.b[1]-c.b[0])*float64(j)/20
+				if a == 0 || b == 0 {
+					continue
+				}
+				got, want := c.fast(a, b), c.q.sum(a, b)
+				if !(math.Abs(got-want) <= 1e-11*math.Abs(want)+1e-9) {
+					t.Errorf("%s(%g, %g) = %.15g, generic %.15g", c.name, a, b, got, want)
+				}
+			}
+		}
+	}
+}

@@ -246,14 +246,14 @@ func region1(p, T float64) props {
 func h1(p, T float64) float64 {
 	tau := T1star / T
 	b := tau - 1.222
-	return R * T * tau * region1Poly.sumJ(7.1-p/p1star, b) / b
+	return R * T * tau * fr1J(7.1-p/p1star, b) / b
 }
 
 // s1 is the region-1 specific entropy in J/(kg·K) at p in Pa and T in K.
 func s1(p, T float64) float64 {
 	tau := T1star / T
 	b := tau - 1.222
-	g, gj := region1Poly.sum0J(7.1-p/p1star, b)
+	g, gj := fr1GJ(7.1-p/p1star, b)
 	return R * (tau*gj/b - g)
 }
 
@@ -261,7 +261,7 @@ func s1(p, T float64) float64 {
 func hcp1(p, T float64) (h, cp float64) {
 	tau := T1star / T
 	b := tau - 1.222
-	gj, gjj := region1Poly.sumJJJ(7.1-p/p1star, b)
+	gj, gjj := fr1JJJ(7.1-p/p1star, b)
 	return R * T * tau * gj / b, -R * tau * tau * gjj / (b * b)
 }
 
@@ -269,7 +269,7 @@ func hcp1(p, T float64) (h, cp float64) {
 func scp1(p, T float64) (s, cp float64) {
 	tau := T1star / T
 	b := tau - 1.222
-	g, gj, gjj := region1Poly.sum0JJJ(7.1-p/p1star, b)
+	g, gj, gjj := fr1GJJJ(7.1-p/p1star, b)
 	return R * (tau*gj/b - g), -R * tau * tau * gjj / (b * b)
 }
 

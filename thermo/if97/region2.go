@@ -95,7 +95,7 @@ func region2(p, T float64) props {
 func h2(p, T float64) float64 {
 	tau := T2star / T
 	b := tau - 0.5
-	return R * T * tau * (ideal2tau(tau) + region2Poly.sumJ(p*1e-6, b)/b)
+	return R * T * tau * (ideal2tau(tau) + fr2J(p*1e-6, b)/b)
 }
 
 // s2 is the region-2 specific entropy in J/(kg·K) at p in Pa and T in K.
@@ -104,7 +104,7 @@ func s2(p, T float64) float64 {
 	b := tau - 0.5
 	pi := p * 1e-6
 	g0, g0t, _ := ideal2(tau)
-	g, gj := region2Poly.sum0J(pi, b)
+	g, gj := fr2GJ(pi, b)
 	return R * (tau*(g0t+gj/b) - (math.Log(pi) + g0 + g))
 }
 
@@ -113,7 +113,7 @@ func hcp2(p, T float64) (h, cp float64) {
 	tau := T2star / T
 	b := tau - 0.5
 	_, g0t, g0tt := ideal2(tau)
-	gj, gjj := region2Poly.sumJJJ(p*1e-6, b)
+	gj, gjj := fr2JJJ(p*1e-6, b)
 	return R * T * tau * (g0t + gj/b), -R * tau * tau * (g0tt + gjj/(b*b))
 }
 
@@ -123,6 +123,6 @@ func scp2(p, T float64) (s, cp float64) {
 	b := tau - 0.5
 	pi := p * 1e-6
 	g0, g0t, g0tt := ideal2(tau)
-	g, gj, gjj := region2Poly.sum0JJJ(pi, b)
+	g, gj, gjj := fr2GJJJ(pi, b)
 	return R * (tau*(g0t+gj/b) - (math.Log(pi) + g0 + g)), -R * tau * tau * (g0tt + gjj/(b*b))
 }
