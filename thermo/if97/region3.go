@@ -25,7 +25,23 @@ type r3sums struct{ f, d, dd, t, tt, dt float64 }
 func region3Sums(rho, T float64) r3sums {
 	delta := rho / Rhoc
 	tau := Tc / T
-	g := region3Poly.all(delta, tau)
+	// Exponents of Table 30 span I = 0..11, J = 0..26: fixed small power
+	// tables (the generic evaluator's are sized for every equation).
+	var pa [r3nI]float64
+	var pb [r3nJ]float64
+	fillPow(pa[:], delta, 0)
+	fillPow(pb[:], tau, 0)
+	var g gsums
+	for k := range region3Poly.t {
+		t := &region3Poly.t[k]
+		x := pa[t.i] * pb[t.j]
+		g.g += t.n * x
+		g.gi += t.ni * x
+		g.gj += t.nj * x
+		g.gii += t.nii * x
+		g.gjj += t.njj * x
+		g.gij += t.nij * x
+	}
 	return r3sums{
 		f:  r3n1*math.Log(delta) + g.g,
 		d:  r3n1 + g.gi,
@@ -33,6 +49,18 @@ func region3Sums(rho, T float64) r3sums {
 		t:  g.gj,
 		tt: g.gjj,
 		dt: g.gij,
+	}
+}
+
+// Exponent ranges of R7-97(2012) Table 30 (checked in init).
+const (
+	r3nI = 12 // I = 0..11
+	r3nJ = 27 // J = 0..26
+)
+
+func init() {
+	if region3Poly.loI != 0 || region3Poly.loJ != 0 || region3Poly.nI != r3nI || region3Poly.nJ != r3nJ {
+		panic("if97: region-3 exponent ranges differ from Table 30") // programming error, caught by every test
 	}
 }
 
@@ -62,15 +90,14 @@ func region3(rho, T float64) props {
 func p3(rho, T float64) (p, dpdrho float64) {
 	delta := rho / Rhoc
 	tau := Tc / T
-	var pa, pb [maxSpan]float64
-	q := region3Poly
-	A, B := pa[:q.nI], pb[:q.nJ]
-	fillPow(A, delta, q.loI)
-	fillPow(B, tau, q.loJ)
+	var pa [r3nI]float64
+	var pb [r3nJ]float64
+	fillPow(pa[:], delta, 0)
+	fillPow(pb[:], tau, 0)
 	d, dd := r3n1, -r3n1
-	for k := range q.t {
-		t := &q.t[k]
-		x := A[t.i] * B[t.j]
+	for k := range region3Poly.t {
+		t := &region3Poly.t[k]
+		x := pa[t.i] * pb[t.j]
 		d += t.ni * x
 		dd += t.nii * x
 	}
@@ -174,6 +201,12 @@ func refineRho3(p, T, rho0 float64) (float64, error) {
 				return rho, nil
 			}
 			break
+		}
+		// A full Newton step this small on the stable branch leaves a
+		// residual of second order (far below 1e-13): accept it without
+		// another evaluation.
+		if dp > 0 && math.Abs(next-rho) <= 1e-9*rho && next == rho-r/dp {
+			return next, nil
 		}
 		rho = next
 		if rho < r3RhoMin || rho > r3RhoMax {
