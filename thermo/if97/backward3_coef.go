@@ -1,7 +1,7 @@
 package if97
 
 // t3aph is IAPWS SR3-03(2014) Eq. 2: T3a(p,h), coefficients I_i, J_i, n_i of its Table 3.
-var t3aph = []ijn{
+var t3aph = []xterm{
 	{-12, 0, -0.133645667811215e-6},
 	{-12, 1, 0.455912656802978e-5},
 	{-12, 2, -0.146294640700979e-4},
@@ -36,7 +36,7 @@ var t3aph = []ijn{
 }
 
 // t3bph is IAPWS SR3-03(2014) Eq. 3: T3b(p,h), coefficients I_i, J_i, n_i of its Table 4.
-var t3bph = []ijn{
+var t3bph = []xterm{
 	{-12, 0, 0.323254573644920e-4},
 	{-12, 1, -0.127575556587181e-3},
 	{-10, 0, -0.475851877356068e-3},
@@ -73,7 +73,7 @@ var t3bph = []ijn{
 }
 
 // v3aph is IAPWS SR3-03(2014) Eq. 4: v3a(p,h), coefficients I_i, J_i, n_i of its Table 6.
-var v3aph = []ijn{
+var v3aph = []xterm{
 	{-12, 6, 0.529944062966028e-2},
 	{-12, 8, -0.170099690234461},
 	{-12, 12, 0.111323814312927e2},
@@ -109,7 +109,7 @@ var v3aph = []ijn{
 }
 
 // v3bph is IAPWS SR3-03(2014) Eq. 5: v3b(p,h), coefficients I_i, J_i, n_i of its Table 7.
-var v3bph = []ijn{
+var v3bph = []xterm{
 	{-12, 0, -0.225196934336318e-8},
 	{-12, 1, 0.140674363313486e-7},
 	{-8, 0, 0.233784085280560e-5},
@@ -143,7 +143,7 @@ var v3bph = []ijn{
 }
 
 // t3aps is IAPWS SR3-03(2014) Eq. 6: T3a(p,s), coefficients I_i, J_i, n_i of its Table 10.
-var t3aps = []ijn{
+var t3aps = []xterm{
 	{-12, 28, 0.150042008263875e10},
 	{-12, 32, -0.159397258480424e12},
 	{-10, 4, 0.502181140217975e-3},
@@ -180,7 +180,7 @@ var t3aps = []ijn{
 }
 
 // t3bps is IAPWS SR3-03(2014) Eq. 7: T3b(p,s), coefficients I_i, J_i, n_i of its Table 11.
-var t3bps = []ijn{
+var t3bps = []xterm{
 	{-12, 1, 0.527111701601660},
 	{-12, 3, -0.401317830052742e2},
 	{-12, 4, 0.153020073134484e3},
@@ -212,7 +212,7 @@ var t3bps = []ijn{
 }
 
 // v3aps is IAPWS SR3-03(2014) Eq. 8: v3a(p,s), coefficients I_i, J_i, n_i of its Table 13.
-var v3aps = []ijn{
+var v3aps = []xterm{
 	{-12, 10, 0.795544074093975e2},
 	{-12, 12, -0.238261242984590e4},
 	{-12, 14, 0.176813100617787e5},
@@ -244,7 +244,7 @@ var v3aps = []ijn{
 }
 
 // v3bps is IAPWS SR3-03(2014) Eq. 9: v3b(p,s), coefficients I_i, J_i, n_i of its Table 14.
-var v3bps = []ijn{
+var v3bps = []xterm{
 	{-12, 0, 0.591599780322238e-4},
 	{-12, 1, -0.185465997137856e-2},
 	{-12, 2, 0.104190510480013e-1},

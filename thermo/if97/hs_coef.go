@@ -1,7 +1,7 @@
 package if97
 
 // p3ahs is IAPWS SR4-04(2014) Eq. 1: p3a(h,s), coefficients I_i, J_i, n_i.
-var p3ahs = []ijn{
+var p3ahs = []xterm{
 	{0, 0, 0.770889828326934e1},
 	{0, 1, -0.260835009128688e2},
 	{0, 5, 0.267416218930389e3},
@@ -38,7 +38,7 @@ var p3ahs = []ijn{
 }
 
 // p3bhs is IAPWS SR4-04(2014) Eq. 2: p3b(h,s), coefficients I_i, J_i, n_i.
-var p3bhs = []ijn{
+var p3bhs = []xterm{
 	{-12, 2, 0.125244360717979e-12},
 	{-12, 10, -0.126599322553713e-1},
 	{-12, 12, 0.506878030140626e1},
@@ -77,7 +77,7 @@ var p3bhs = []ijn{
 }
 
 // h1sTerms is IAPWS SR4-04(2014) Eq. 3: saturated-liquid boundary h'1(s), coefficients I_i, J_i, n_i.
-var h1sTerms = []ijn{
+var h1sTerms = []xterm{
 	{0, 14, 0.332171191705237},
 	{0, 36, 0.611217706323496e-3},
 	{1, 3, -0.882092478906822e1},
@@ -108,7 +108,7 @@ var h1sTerms = []ijn{
 }
 
 // h3asTerms is IAPWS SR4-04(2014) Eq. 4: saturated-liquid boundary h'3a(s), coefficients I_i, J_i, n_i.
-var h3asTerms = []ijn{
+var h3asTerms = []xterm{
 	{0, 1, 0.822673364673336},
 	{0, 4, 0.181977213534479},
 	{0, 10, -0.112000260313624e-1},
@@ -131,7 +131,7 @@ var h3asTerms = []ijn{
 }
 
 // h2absTerms is IAPWS SR4-04(2014) Eq. 5: saturated-vapour boundary h”2ab(s), coefficients I_i, J_i, n_i.
-var h2absTerms = []ijn{
+var h2absTerms = []xterm{
 	{1, 8, -0.524581170928788e3},
 	{1, 24, -0.926947218142218e7},
 	{2, 4, -0.237385107491666e3},
@@ -165,7 +165,7 @@ var h2absTerms = []ijn{
 }
 
 // h2c3bsTerms is IAPWS SR4-04(2014) Eq. 6: saturated-vapour boundary h”2c3b(s), coefficients I_i, J_i, n_i.
-var h2c3bsTerms = []ijn{
+var h2c3bsTerms = []xterm{
 	{0, 0, 0.104351280732769e1},
 	{0, 3, -0.227807912708513e1},
 	{0, 4, 0.180535256723202e1},
@@ -185,7 +185,7 @@ var h2c3bsTerms = []ijn{
 }
 
 // hb13sTerms is IAPWS SR4-04(2014) Eq. 7: boundary between regions 1 and 3, hB13(s), coefficients I_i, J_i, n_i.
-var hb13sTerms = []ijn{
+var hb13sTerms = []xterm{
 	{0, 0, 0.913965547600543},
 	{1, -2, -0.430944856041991e-4},
 	{1, 2, 0.603235694765419e2},
@@ -195,7 +195,7 @@ var hb13sTerms = []ijn{
 }
 
 // tb23hsTerms is IAPWS SR4-04(2014) Eq. 8: boundary between regions 2 and 3, TB23(h,s), coefficients I_i, J_i, n_i.
-var tb23hsTerms = []ijn{
+var tb23hsTerms = []xterm{
 	{-12, 10, 0.629096260829810e-3},
 	{-10, 8, -0.823453502583165e-3},
 	{-8, 3, 0.515446951519474e-7},
@@ -224,7 +224,7 @@ var tb23hsTerms = []ijn{
 }
 
 // t4hsTerms is IAPWS SR4-04(2014) Eq. 9: Tsat(h,s) for region 4, coefficients I_i, J_i, n_i.
-var t4hsTerms = []ijn{
+var t4hsTerms = []xterm{
 	{0, 0, 0.179882673606601},
 	{0, 3, -0.267507455199603},
 	{0, 12, 0.116276722612600e1},
