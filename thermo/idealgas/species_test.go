@@ -281,3 +281,39 @@ func TestCpVsGERG2008Ideal(t *testing.T) {
 		}
 	}
 }
+
+// TestButaneFit: the fitted butanes reproduce the GERG-2008 ideal-gas cp0
+// (testdata/reference/eos/gerg2008.json) to 0.1 % on 200-1000 K (fit
+// residual 0.071 % / 0.086 %), and h and s at 298.15 K equal the formation
+// values the fit used (from memory, testdata/fit_butanes.py), to 1e-8.
+func TestButaneFit(t *testing.T) {
+	g, rstar := loadGERGIdeal(t)
+	for _, c := range []struct {
+		name   string
+		dhf, s float64 // J/mol, J/(mol K), from memory
+		cp298  float64 // J/(mol K), handbook value from memory
+	}{
+		{"n-C4H10", -125.79e3, 310.23, 98.49},
+		{"i-C4H10", -134.2e3, 294.64, 96.65},
+	} {
+		s := mustSpecies(t, c.name)
+		if s2 := mustSpecies(t, strings.ReplaceAll(c.name, "-", "")); s2.Name != s.Name {
+			t.Errorf("alias of %s resolves to %s", c.name, s2.Name)
+		}
+		for T := 200.0; T <= 1000; T += 10 {
+			want := g[strings.ToUpper(c.name)].cp0(T, rstar)
+			if d := math.Abs(R*s.CpR(T)/want - 1); d > 0.001 {
+				t.Errorf("%s at %v K: cp off GERG-2008 by %.3f %%", c.name, T, 100*d)
+			}
+		}
+		if h := R * 298.15 * s.HRT(298.15); math.Abs(h-c.dhf) > 1e-8*math.Abs(c.dhf) {
+			t.Errorf("%s: h(298.15 K) = %v J/mol, want %v", c.name, h, c.dhf)
+		}
+		if sv := R * s.SR(298.15); math.Abs(sv-c.s) > 1e-8*c.s {
+			t.Errorf("%s: s(298.15 K) = %v J/(mol K), want %v", c.name, sv, c.s)
+		}
+		if d := math.Abs(R*s.CpR(298.15)/c.cp298 - 1); d > 0.003 {
+			t.Errorf("%s: cp(298.15 K) = %v J/(mol K), handbook (from memory) %v", c.name, R*s.CpR(298.15), c.cp298)
+		}
+	}
+}
