@@ -55,11 +55,15 @@ func TestDerivativesFiniteDifference(t *testing.T) {
 	}
 }
 
-// satTemps returns test temperatures from the triple point to 0.995 Tc.
+// satTemps returns test temperatures from the triple point to within
+// 1e-5 Tc of the critical point.
 func satTemps(f *Fluid) []float64 {
 	var out []float64
-	for _, x := range []float64{0, 0.2, 0.5, 0.8, 0.95, 0.99, 0.995} {
-		out = append(out, f.tmin+x*(0.995*f.tc-f.tmin)/0.995*0.995)
+	for _, x := range []float64{0, 0.2, 0.5, 0.8, 0.95} {
+		out = append(out, f.tmin+x*(0.99*f.tc-f.tmin))
+	}
+	for _, x := range []float64{1e-2, 5e-3, 1e-3, 1e-4, 1e-5} {
+		out = append(out, f.tc*(1-x))
 	}
 	return out
 }
@@ -174,7 +178,7 @@ func TestFlashRoundTrip(t *testing.T) {
 			if T < f.tmin || T > f.tmax {
 				continue
 			}
-			for _, pf := range []float64{0.01, 0.3, 0.9, 1.2, 5} {
+			for _, pf := range []float64{0.01, 0.3, 0.9, 0.999, 1.001, 1.2, 5} {
 				states = append(states, [2]float64{pf * f.pc, T})
 			}
 		}

@@ -303,8 +303,10 @@ func (f *Fluid) GasConstant() float64 { return f.r }
 func (f *Fluid) Reducing() (Tr, rhor float64) { return f.tr, f.rhor }
 
 // CriticalPoint returns the critical temperature (K), pressure (Pa) and
-// density (kg/m3) listed with the equation (for pseudo-pure air, CoolProp's
-// value for the mixture critical point).
+// density (kg/m3) of the equation: the listed values, except where the
+// listed point is not the equation's own critical point (ammonia-1993,
+// r134a), where New computes it from the equation. For pseudo-pure air it
+// is CoolProp's value for the mixture critical point.
 func (f *Fluid) CriticalPoint() (T, p, rho float64) { return f.tc, f.pc, f.rhoc }
 
 // Limits returns the validity range used for range errors: T_min (the
@@ -349,6 +351,9 @@ func (f *Fluid) Parts(tau, delta float64) (ideal, residual Derivatives, err erro
 // deviation (at least 5 times the stated error, at least 0.2 %) becomes the
 // band in which a (p,T) flash consults the Maxwell solution.
 func (f *Fluid) calibrate() error {
+	if !f.pseudoPure {
+		f.ownCritical()
+	}
 	if f.pseudoPure {
 		f.ancMargin = 0.02 + 3*max(f.ancPL.maxErr, f.ancPV.maxErr)
 		f.ancTolL = 3*f.ancRL.maxErr + 0.005
@@ -383,4 +388,63 @@ func (f *Fluid) calibrate() error {
 	f.ancTolL = 3*devL + 0.005
 	f.ancTolV = 3*devV + 0.005
 	return nil
+}
+
+// ownCritical replaces the listed critical point by the equation's own when
+// they disagree: for ammonia-1993 the listed point (its reducing state,
+// 405.4 K, 11.333 MPa) has dp/drho < 0, and for r134a slightly so. The
+// critical temperature is the highest T at which min over rho of
+// (dp/drho)_T reaches zero (bisection on T, golden-section search on delta).
+// Equations whose listed point already has |dp/drho| < 1e-6 R T are kept as
+// listed (water and co2, whose non-analytic terms make the point singular,
+// among them).
+func (f *Fluid) ownCritical() {
+	yAt := func(T, rho float64) float64 {
+		var tp tauPart
+		f.q.tauPart(f.tr/T, &tp)
+		r := f.q.residual(&tp, rho/f.rhor, false)
+		return 1 + 2*r.D + r.DD
+	}
+	if math.Abs(yAt(f.tc, f.rhoc)) < 1e-6 {
+		return
+	}
+	minY := func(T float64) (y, rho float64) {
+		a, b := 0.8*f.rhoc, 1.2*f.rhoc
+		g := (math.Sqrt(5) - 1) / 2
+		c, d := b-g*(b-a), a+g*(b-a)
+		yc, yd := yAt(T, c), yAt(T, d)
+		for i := 0; i < 80; i++ {
+			if yc < yd {
+				b, d, yd = d, c, yc
+				c = b - g*(b-a)
+				yc = yAt(T, c)
+			} else {
+				a, c, yc = c, d, yd
+				d = a + g*(b-a)
+				yd = yAt(T, d)
+			}
+		}
+		return min(yc, yd), 0.5 * (a + b)
+	}
+	lo, hi := 0.98*f.tc, 1.02*f.tc
+	if y, _ := minY(lo); y >= 0 {
+		return
+	}
+	if y, _ := minY(hi); y <= 0 {
+		return
+	}
+	for i := 0; i < 60; i++ {
+		m := 0.5 * (lo + hi)
+		if y, _ := minY(m); y < 0 {
+			lo = m
+		} else {
+			hi = m
+		}
+	}
+	T := 0.5 * (lo + hi)
+	_, rho := minY(T)
+	var tp tauPart
+	f.q.tauPart(f.tr/T, &tp)
+	p, _ := f.pOf(&tp, T, rho)
+	f.tc, f.pc, f.rhoc = T, p, rho
 }

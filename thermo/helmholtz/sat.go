@@ -133,14 +133,24 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 	if p < f.satTriple.p*(1-1e-12) {
 		return satPoint{}, thermo.Below(f.name, "p", "Pa", p, f.satTriple.p, "saturation pressure at the triple-point temperature")
 	}
-	T := f.ancTsat(p)
+	T := f.ancTsat(p) * f.tc / f.ancP.tr // corresponding temperature for this equation's Tc
 	lo, hi := f.tmin, f.tc
+	if !(T > lo && T < hi) {
+		T = 0.5 * (lo + hi)
+	}
 	rl, rv := 0.0, 0.0
-	for it := 0; it < 60; it++ {
+	for it := 0; it < 80; it++ {
 		sp, err := f.maxwell(T, rl, rv)
 		if err != nil {
-			// Near the critical point a fresh start sometimes helps.
 			if sp, err = f.maxwell(T, 0, 0); err != nil {
+				// Too close to the critical point for the Maxwell solve:
+				// the answer lies lower if p is not within rounding of pc.
+				if errors.Is(err, thermo.ErrNoConvergence) && T > f.satRef.T && f.satRef.T > 0 {
+					hi = T
+					T = 0.5 * (lo + hi)
+					rl, rv = 0, 0
+					continue
+				}
 				return satPoint{}, err
 			}
 		}
