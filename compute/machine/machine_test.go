@@ -4,6 +4,7 @@ import (
 	"errors"
 	"math"
 	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -432,3 +433,7 @@ func TestParseKind(t *testing.T) {
 		t.Errorf("ParseKind(boiler): %v", err)
 	}
 }
+
+func contains(s, sub string) bool { return strings.Contains(s, sub) }
+
+func timeZero() time.Time { return time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC) }
