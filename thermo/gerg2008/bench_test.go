@@ -72,3 +72,33 @@ func BenchmarkNew(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkStable is the tangent-plane stability test of the 11-component
+// gas at 6 MPa, 300 K (stable, the common case).
+func BenchmarkStable(b *testing.B) {
+	m, err := New(gas11)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if ok, err := m.Stable(6e6, 300); err != nil || !ok {
+			b.Fatal(ok, err)
+		}
+	}
+}
+
+// BenchmarkStableNearDew is the same test at 255 K, 3 MPa, inside the
+// phase envelope close to the dew line.
+func BenchmarkStableNearDew(b *testing.B) {
+	m, err := New(gas11)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := m.Stable(3e6, 255); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

@@ -141,6 +141,8 @@ type Mixture struct {
 	ts   *terms
 	ig   []idealComp
 	name string
+	// checkStability makes Flash run Stable on every result (WithStabilityCheck).
+	checkStability bool
 }
 
 // New returns the GERG-2008 model of a mixture given as mole fractions keyed
