@@ -1,8 +1,12 @@
 package machine
 
 import (
+	"errors"
 	"math"
+	"slices"
 	"testing"
+
+	"github.com/exergywatch/exergywatch/compute"
 
 	"github.com/exergywatch/exergywatch/thermo/helmholtz"
 	"github.com/exergywatch/exergywatch/thermo/idealgas"
@@ -58,5 +62,62 @@ func TestDryAirExactPolytropic(t *testing.T) {
 	}
 	if a, b := val(r, PolytropicEfficiency), val(r, PolytropicEfficiencyIntegrated); !relNear(a, b, 1e-8) {
 		t.Errorf("exact %.10f vs integrated %.10f", a, b)
+	}
+}
+
+// Near-saturation: a refrigeration compressor's suction a few kelvin above
+// saturation is flagged (default margin 5 K, common practice); within the
+// measurement band of saturation (p,T) cannot fix the state and Evaluate
+// refuses it instead of guessing a phase.
+func TestNearSaturationSuction(t *testing.T) {
+	fl, err := helmholtz.New("ammonia")
+	if err != nil {
+		t.Fatal(err)
+	}
+	const p1, p2 = 3e5, 1.2e6
+	ts, err := fl.SatT(p1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	spec := &Spec{Kind: Compressor, Fluid: fl, Inlet: ByPT, Outlet: ByPT, Uncertainty: Uncertainty{T1: Std{Abs: 0.3}, T2: Std{Abs: 0.3}}}
+	cases := []struct {
+		superheat float64 // K
+		nearFlag  bool
+		notFixed  bool
+	}{
+		{20, false, false},
+		{6, false, false},
+		{3, true, false},
+		{0.7, true, false},
+		{0.5, false, true}, // band = 2*0.3 K (U95 of T; dTsat/dp*u_p = 0 here)
+		{0.05, false, true},
+		{-0.3, false, true}, // reads just below saturation: liquid by (p,T), really wet or saturated vapour
+	}
+	for _, c := range cases {
+		in := &Inputs{P1: p1, T1: ts + c.superheat, P2: p2, T2: 400}
+		r, err := Evaluate(spec, in)
+		if c.notFixed {
+			if !errors.Is(err, ErrStateNotFixed) || ReasonCode(err) != ReasonStateNotFixed {
+				t.Errorf("superheat %v K: err = %v, want ErrStateNotFixed", c.superheat, err)
+			}
+			continue
+		}
+		if err != nil {
+			t.Errorf("superheat %v K: %v", c.superheat, err)
+			continue
+		}
+		got := slices.Contains(r.Reasons, ReasonNearSaturationInlet)
+		if got != c.nearFlag {
+			t.Errorf("superheat %v K: near-saturation flag %v, want %v (%v)", c.superheat, got, c.nearFlag, r.Reasons)
+		}
+		if c.nearFlag && r.Quality == compute.QualityGood {
+			t.Errorf("superheat %v K: quality good despite near saturation", c.superheat)
+		}
+	}
+	// A configurable margin: 2 K no longer flags 3 K of superheat.
+	spec.SaturationMargin = 2
+	r := mustEval(t, spec, &Inputs{P1: p1, T1: ts + 3, P2: p2, T2: 400})
+	if slices.Contains(r.Reasons, ReasonNearSaturationInlet) {
+		t.Errorf("margin 2 K flagged 3 K of superheat")
 	}
 }
