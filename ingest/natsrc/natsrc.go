@@ -1,0 +1,446 @@
+// Package natsrc is the NATS source of ingest: it subscribes to configured
+// subjects (wildcards allowed), decodes the payloads (package payload) and
+// puts the samples on the ingest queue.
+//
+// Two delivery modes:
+//
+//   - core: plain NATS subscriptions, at most once (latest value). When the
+//     ingest queue is full the batch is dropped and counted (queue_full).
+//   - jetstream: a durable pull consumer with explicit acknowledgement, at
+//     least once. Every message gets one ingest.Ack shared by its samples;
+//     the message is acknowledged only when every sample was taken into its
+//     machine window and the snapshot holding it was released (or the
+//     sample was dropped with a counted reason). A message that decodes to
+//     nothing is terminated (it would fail again). A crash or restart
+//     before the release leaves the message unacknowledged, so the server
+//     redelivers it after AckWait; redelivered samples already in the
+//     window are counted as duplicates.
+//
+// The connection reconnects forever. The reconnect buffer holds outgoing
+// data while the link is down; for this subscriber that is the
+// acknowledgements, so it is sized to hold MaxAckPending acknowledgements
+// (about 128 bytes each on the wire), at least 1 MiB.
+package natsrc
+
+import (
+	"context"
+	"crypto/tls"
+	"crypto/x509"
+	"errors"
+	"fmt"
+	"log/slog"
+	"os"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/payload"
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
+)
+
+// Delivery modes.
+const (
+	ModeCore      = "core"
+	ModeJetStream = "jetstream"
+)
+
+// Config is the NATS source configuration.
+type Config struct {
+	URLs     []string `yaml:"urls"`     // nats://host:4222, tls://host:4222
+	Name     string   `yaml:"name"`     // connection name shown by the server
+	Subjects []string `yaml:"subjects"` // e.g. plant.unit1.>, plant.*.turbine
+	// Format: auto (default), json or line.
+	Format string `yaml:"format"`
+	// LinePrecision is the unit of line-protocol timestamps (default 1ns).
+	LinePrecision time.Duration `yaml:"line_precision"`
+	Mode          string        `yaml:"mode"` // core (default) or jetstream
+
+	// JetStream settings.
+	Stream  string `yaml:"stream"`  // stream holding the subjects (must exist)
+	Durable string `yaml:"durable"` // durable consumer name (created or updated)
+	// AckWait must exceed the alignment window plus one tick plus the
+	// evaluation time; default 2 min.
+	AckWait time.Duration `yaml:"ack_wait"`
+	// MaxAckPending bounds the unacknowledged messages; it must hold the
+	// messages of one window plus one tick at the peak rate. Default 65536.
+	MaxAckPending int `yaml:"max_ack_pending"`
+	// FetchBatch is the pull batch size (default 512).
+	FetchBatch int `yaml:"fetch_batch"`
+
+	ReconnectWait time.Duration `yaml:"reconnect_wait"` // default 1 s
+	// ReconnectBufferBytes: default max(1 MiB, 128 B * MaxAckPending).
+	ReconnectBufferBytes int `yaml:"reconnect_buffer_bytes"`
+	// Core subscription pending limits (slow-consumer protection).
+	PendingMsgs  int `yaml:"pending_msgs"`  // default 65536
+	PendingBytes int `yaml:"pending_bytes"` // default 64 MiB
+
+	TLS             *TLSConfig `yaml:"tls"`
+	User            string     `yaml:"user"`
+	Password        string     `yaml:"password"`
+	Token           string     `yaml:"token"`
+	NKeySeedFile    string     `yaml:"nkey_seed_file"`
+	CredentialsFile string     `yaml:"credentials_file"`
+}
+
+// TLSConfig names PEM files for TLS.
+type TLSConfig struct {
+	CAFile     string `yaml:"ca_file"`
+	CertFile   string `yaml:"cert_file"` // client certificate (mutual TLS)
+	KeyFile    string `yaml:"key_file"`
+	ServerName string `yaml:"server_name"`
+}
+
+// Errors callers branch on.
+var (
+	ErrConfig = errors.New("invalid nats source settings")
+	// ErrClosed: the server refused the connection for good (for example
+	// authorization violation twice in a row).
+	ErrClosed = errors.New("nats connection closed")
+)
+
+func (c *Config) defaults() error {
+	if len(c.URLs) == 0 {
+		return fmt.Errorf("%w: no urls", ErrConfig)
+	}
+	if len(c.Subjects) == 0 {
+		return fmt.Errorf("%w: no subjects", ErrConfig)
+	}
+	if c.Mode == "" {
+		c.Mode = ModeCore
+	}
+	if c.Mode != ModeCore && c.Mode != ModeJetStream {
+		return fmt.Errorf("%w: mode %q (core, jetstream)", ErrConfig, c.Mode)
+	}
+	if c.Mode == ModeJetStream && (c.Stream == "" || c.Durable == "") {
+		return fmt.Errorf("%w: jetstream mode needs stream and durable", ErrConfig)
+	}
+	if c.AckWait == 0 {
+		c.AckWait = 2 * time.Minute
+	}
+	if c.MaxAckPending == 0 {
+		c.MaxAckPending = 65536
+	}
+	if c.FetchBatch == 0 {
+		c.FetchBatch = 512
+	}
+	if c.ReconnectWait == 0 {
+		c.ReconnectWait = time.Second
+	}
+	if c.ReconnectBufferBytes == 0 {
+		c.ReconnectBufferBytes = max(1<<20, 128*c.MaxAckPending)
+	}
+	if c.PendingMsgs == 0 {
+		c.PendingMsgs = 65536
+	}
+	if c.PendingBytes == 0 {
+		c.PendingBytes = 64 << 20
+	}
+	if c.Token != "" && c.User != "" {
+		return fmt.Errorf("%w: token and user are exclusive", ErrConfig)
+	}
+	if _, err := payload.ParseFormat(c.Format); err != nil {
+		return fmt.Errorf("%w: %v", ErrConfig, err)
+	}
+	return nil
+}
+
+// Source reads samples from NATS.
+type Source struct {
+	cfg     Config
+	format  payload.Format
+	q       *ingest.Queue
+	metrics *ingest.Metrics
+	log     *slog.Logger
+	limiter *ingest.LogLimiter
+	clock   ingest.Clock
+
+	mu         sync.Mutex
+	downSince  time.Time
+	connected  chan struct{} // closed on first connect (tests)
+	connOnce   sync.Once
+	lastGap    time.Duration
+	reconnects int
+}
+
+// New returns a NATS source feeding q. metrics, log and clock may be nil.
+func New(cfg Config, q *ingest.Queue, metrics *ingest.Metrics, log *slog.Logger, clock ingest.Clock) (*Source, error) {
+	if err := cfg.defaults(); err != nil {
+		return nil, err
+	}
+	f, _ := payload.ParseFormat(cfg.Format)
+	if log == nil {
+		log = slog.Default()
+	}
+	if clock == nil {
+		clock = ingest.SystemClock{}
+	}
+	log = log.With("source", "nats")
+	return &Source{cfg: cfg, format: f, q: q, metrics: metrics, log: log, clock: clock,
+		limiter: ingest.NewLogLimiter(log, time.Minute), connected: make(chan struct{})}, nil
+}
+
+// Connected is closed once the first connection is up.
+func (s *Source) Connected() <-chan struct{} { return s.connected }
+
+// Options returns the nats.go options built from the configuration (also
+// used by tests and the bare benchmark subscriber).
+func (s *Source) Options() ([]nats.Option, error) {
+	c := s.cfg
+	opts := []nats.Option{
+		nats.Name(c.Name),
+		nats.MaxReconnects(-1),
+		nats.RetryOnFailedConnect(true),
+		nats.ReconnectWait(c.ReconnectWait),
+		nats.ReconnectBufSize(c.ReconnectBufferBytes),
+		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
+			s.mu.Lock()
+			if s.downSince.IsZero() {
+				s.downSince = s.clock.Now()
+			}
+			s.mu.Unlock()
+			s.log.Warn("nats disconnected", "err", err)
+		}),
+		nats.ReconnectHandler(func(nc *nats.Conn) {
+			s.mu.Lock()
+			var gap time.Duration
+			if !s.downSince.IsZero() {
+				gap = s.clock.Now().Sub(s.downSince)
+				s.downSince = time.Time{}
+			}
+			s.lastGap = gap
+			s.reconnects++
+			s.mu.Unlock()
+			if s.metrics != nil {
+				s.metrics.Reconnects.Add(1)
+				s.metrics.GapNanos.Add(uint64(max(gap, 0)))
+			}
+			s.log.Warn("nats reconnected", "url", nc.ConnectedUrlRedacted(), "gap", gap)
+		}),
+		nats.ConnectHandler(func(*nats.Conn) { s.connOnce.Do(func() { close(s.connected) }) }),
+		nats.ErrorHandler(func(_ *nats.Conn, sub *nats.Subscription, err error) {
+			subj := ""
+			if sub != nil {
+				subj = sub.Subject
+			}
+			s.limiter.Warn(s.clock.Now(), "async:"+subj, "nats async error", "err", err)
+		}),
+	}
+	if c.TLS != nil {
+		tc := &tls.Config{ServerName: c.TLS.ServerName, MinVersion: tls.VersionTLS12}
+		if c.TLS.CAFile != "" {
+			pem, err := os.ReadFile(c.TLS.CAFile)
+			if err != nil {
+				return nil, fmt.Errorf("%w: tls ca_file: %v", ErrConfig, err)
+			}
+			pool := x509.NewCertPool()
+			if !pool.AppendCertsFromPEM(pem) {
+				return nil, fmt.Errorf("%w: tls ca_file %s holds no certificate", ErrConfig, c.TLS.CAFile)
+			}
+			tc.RootCAs = pool
+		}
+		if c.TLS.CertFile != "" || c.TLS.KeyFile != "" {
+			cert, err := tls.LoadX509KeyPair(c.TLS.CertFile, c.TLS.KeyFile)
+			if err != nil {
+				return nil, fmt.Errorf("%w: tls client certificate: %v", ErrConfig, err)
+			}
+			tc.Certificates = []tls.Certificate{cert}
+		}
+		opts = append(opts, nats.Secure(tc))
+	}
+	if c.User != "" {
+		opts = append(opts, nats.UserInfo(c.User, c.Password))
+	}
+	if c.Token != "" {
+		opts = append(opts, nats.Token(c.Token))
+	}
+	if c.NKeySeedFile != "" {
+		o, err := nats.NkeyOptionFromSeed(c.NKeySeedFile)
+		if err != nil {
+			return nil, fmt.Errorf("%w: nkey seed: %v", ErrConfig, err)
+		}
+		opts = append(opts, o)
+	}
+	if c.CredentialsFile != "" {
+		if _, err := os.Stat(c.CredentialsFile); err != nil {
+			return nil, fmt.Errorf("%w: credentials file: %v", ErrConfig, err)
+		}
+		opts = append(opts, nats.UserCredentials(c.CredentialsFile))
+	}
+	return opts, nil
+}
+
+// Run connects and delivers samples until ctx ends. It returns an error
+// only for settings the server refuses for good (bad stream, auth refused
+// at the first connect); lost connections are retried forever.
+func (s *Source) Run(ctx context.Context) error {
+	opts, err := s.Options()
+	if err != nil {
+		return err
+	}
+	closed := make(chan struct{})
+	var once sync.Once
+	opts = append(opts, nats.ClosedHandler(func(*nats.Conn) { once.Do(func() { close(closed) }) }))
+	nc, err := nats.Connect(strings.Join(s.cfg.URLs, ","), opts...)
+	if err != nil {
+		return fmt.Errorf("nats connect: %w", err)
+	}
+	defer nc.Close()
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	// The connection closes for good only on a repeated authentication
+	// failure (nats.go gives up then) or on our own Close.
+	closeErr := make(chan error, 1)
+	watcherDone := make(chan struct{})
+	go func() {
+		defer close(watcherDone)
+		select {
+		case <-closed:
+			closeErr <- nc.LastError()
+			cancel()
+		case <-ctx.Done():
+		}
+	}()
+	if s.cfg.Mode == ModeCore {
+		err = s.runCore(ctx, nc)
+	} else {
+		err = s.runJetStream(ctx, nc)
+	}
+	cancel()
+	<-watcherDone
+	select {
+	case cerr := <-closeErr:
+		if err == nil {
+			err = fmt.Errorf("%w: %v", ErrClosed, cerr)
+		}
+	default:
+	}
+	return err
+}
+
+func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
+	dec := payload.NewDecoder(s.format)
+	dec.Precision = s.cfg.LinePrecision
+	var mu sync.Mutex // one decoder shared by the subscriptions' callbacks
+	var subs []*nats.Subscription
+	for _, subj := range s.cfg.Subjects {
+		sub, err := nc.Subscribe(subj, func(m *nats.Msg) {
+			mu.Lock()
+			batch := s.decode(dec, m.Subject, m.Data)
+			mu.Unlock()
+			if len(batch) > 0 {
+				s.q.Offer(batch)
+			}
+		})
+		if err != nil {
+			return fmt.Errorf("nats subscribe %q: %w", subj, err)
+		}
+		if err := sub.SetPendingLimits(s.cfg.PendingMsgs, s.cfg.PendingBytes); err != nil {
+			return fmt.Errorf("nats pending limits: %w", err)
+		}
+		subs = append(subs, sub)
+	}
+	<-ctx.Done()
+	for _, sub := range subs {
+		_ = sub.Unsubscribe()
+	}
+	return nil
+}
+
+// decode turns one message into samples, counting and logging failures.
+func (s *Source) decode(dec *payload.Decoder, subject string, data []byte) []ingest.Sample {
+	now := s.clock.Now()
+	if s.metrics != nil {
+		s.metrics.Messages.Add(1)
+	}
+	batch, errs := dec.Decode(data, now, nil, nil)
+	if len(errs) > 0 {
+		if s.metrics != nil {
+			s.metrics.DecodeErrors.Add(uint64(len(errs)))
+			s.metrics.Count(ingest.ReasonDecode, uint64(len(errs)))
+		}
+		for _, e := range errs {
+			key := e.Tag
+			if key == "" {
+				key = "subject:" + subject
+			}
+			s.limiter.Warn(now, key, "payload decode error", "subject", subject, "err", e.Err)
+		}
+	}
+	return batch
+}
+
+func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
+	js, err := jetstream.New(nc)
+	if err != nil {
+		return fmt.Errorf("jetstream: %w", err)
+	}
+	ccfg := jetstream.ConsumerConfig{
+		Durable:        s.cfg.Durable,
+		FilterSubjects: s.cfg.Subjects,
+		AckPolicy:      jetstream.AckExplicitPolicy,
+		AckWait:        s.cfg.AckWait,
+		MaxAckPending:  s.cfg.MaxAckPending,
+		DeliverPolicy:  jetstream.DeliverAllPolicy,
+	}
+	var cons jetstream.Consumer
+	// The server may be down at start: retry until ctx ends.
+	for {
+		cctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+		cons, err = js.CreateOrUpdateConsumer(cctx, s.cfg.Stream, ccfg)
+		cancel()
+		if err == nil {
+			break
+		}
+		if errors.Is(err, jetstream.ErrStreamNotFound) && nc.IsConnected() {
+			return fmt.Errorf("jetstream stream %q: %w", s.cfg.Stream, err)
+		}
+		s.log.Warn("jetstream consumer not ready, retrying", "err", err)
+		select {
+		case <-ctx.Done():
+			return nil
+		case <-time.After(s.cfg.ReconnectWait):
+		}
+	}
+	dec := payload.NewDecoder(s.format)
+	dec.Precision = s.cfg.LinePrecision
+	cc, err := cons.Consume(func(m jetstream.Msg) {
+		batch := s.decode(dec, m.Subject(), m.Data())
+		if len(batch) == 0 {
+			// Nothing usable: a redelivery would fail the same way.
+			_ = m.Term()
+			return
+		}
+		ack := ingest.NewAck(len(batch), func() {
+			if err := m.Ack(); err != nil {
+				s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+				return
+			}
+			if s.metrics != nil {
+				s.metrics.Acked.Add(1)
+			}
+		})
+		for i := range batch {
+			batch[i].Ack = ack
+		}
+		if err := s.q.Put(ctx, batch); err != nil {
+			// Shutting down: leave the message unacknowledged.
+			return
+		}
+	}, jetstream.PullMaxMessages(s.cfg.FetchBatch), jetstream.PullHeartbeat(2*time.Second),
+		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
+			s.limiter.Warn(s.clock.Now(), "consume", "jetstream consume", "err", err)
+		}))
+	if err != nil {
+		return fmt.Errorf("jetstream consume: %w", err)
+	}
+	<-ctx.Done()
+	cc.Drain()
+	select {
+	case <-cc.Closed():
+	case <-time.After(5 * time.Second):
+		cc.Stop()
+	}
+	return nil
+}
