@@ -203,53 +203,27 @@ func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
 	lo, hi := f.tmin, f.tmax
 	branch := thermo.PhaseUnknown // decided per T by classify
 	var sat *thermo.State
-	if !f.pseudoPure && p < f.pc && p >= f.satTriple.p {
-		sp, err := f.satAtP(p)
+	if p >= f.pc {
+		branch = thermo.PhaseSupercritical // liquid below Tc, set per T in solveT
+	} else {
+		e, err := f.edges(p)
 		if err != nil {
 			return thermo.State{}, err
 		}
-		l, v := f.satStates(sp)
-		yl, yv := l.S, v.S
-		if isH {
-			yl, yv = l.H, v.H
-		}
-		switch {
-		case y >= yl && y <= yv:
-			return f.mix(sp, (y-yl)/(yv-yl)), nil
-		case y < yl:
-			hi, branch = sp.T, thermo.PhaseLiquid
-			sat = &l
-		default:
-			lo, branch = sp.T, thermo.PhaseVapour
-			sat = &v
-		}
-	} else if p >= f.pc {
-		branch = thermo.PhaseSupercritical // phase set per T below
-	} else if f.pseudoPure {
-		// Air: liquid below the bubble temperature, vapour above the dew
-		// temperature (CoolProp's ancillaries); no model in between.
-		Tb, okb := f.ancInvert(&f.ancPL, p)
-		Td, okd := f.ancInvert(&f.ancPV, p)
-		if okb && okd && Tb < Td {
-			l, err := f.statePT(p, Tb, thermo.PhaseLiquid, nil, 0)
-			if err != nil {
-				return thermo.State{}, err
-			}
-			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
-			if err != nil {
-				return thermo.State{}, err
-			}
-			yl, yv := l.S, v.S
+		if e.split {
+			yl, yv := e.l.S, e.v.S
 			if isH {
-				yl, yv = l.H, v.H
+				yl, yv = e.l.H, e.v.H
 			}
 			switch {
-			case y <= yl:
-				hi, branch, sat = Tb, thermo.PhaseLiquid, &l
-			case y >= yv:
-				lo, branch, sat = Td, thermo.PhaseVapour, &v
+			case y < yl:
+				hi, branch, sat = e.l.T, thermo.PhaseLiquid, &e.l
+			case y > yv:
+				lo, branch, sat = e.v.T, thermo.PhaseVapour, &e.v
+			case e.pure:
+				return f.mix(e.sat, (y-yl)/(yv-yl)), nil
 			default:
-				return thermo.State{}, fmt.Errorf("%s: p = %g Pa with this h or s lies between the bubble (%g K) and dew (%g K) states; two-phase air is not modelled: %w", f.name, p, Tb, Td, thermo.ErrPhase)
+				return thermo.State{}, fmt.Errorf("%s: p = %g Pa with this h or s lies between the bubble (%g K) and dew (%g K) states; two-phase air is not modelled: %w", f.name, p, e.l.T, e.v.T, thermo.ErrPhase)
 			}
 		}
 	}
@@ -287,7 +261,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		v, d := value(edge)
 		T = edge.T + (y-v)/d
 		if !isH {
-			T = edge.T * math.Exp((y-v)*edge.T/(edge.Cp))
+			T = edge.T * math.Exp((y-v)/edge.Cp) // ds = cp dT/T
 		}
 	} else {
 		// Ideal-gas-like guess around 1.2 Tc, corrected by Newton.
@@ -312,7 +286,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		v, d := value(&s)
 		fx := v - y
 		scale := d * T // y change for dT = T
-		if math.Abs(fx) <= 1e-12*scale {
+		if math.Abs(fx) <= 1e-11*scale { // |T error| <= 1e-11 T
 			return s, nil
 		}
 		if fx > 0 {
@@ -392,4 +366,52 @@ func (f *Fluid) outside(isH bool, y float64, sb thermo.State, fx float64) error 
 		return thermo.Below(f.name, q, unit, y, lim, ctx)
 	}
 	return thermo.Above(f.name, q, unit, y, lim, ctx)
+}
+
+// edgeSet holds the phase boundary at one pressure below pc: the saturated
+// liquid and vapour (pure fluids, Maxwell) or the bubble-point liquid and
+// dew-point vapour (pseudo-pure air, from CoolProp's ancillaries). split is
+// false when p is below the triple-point pressure (vapour only) or outside
+// the air ancillaries' range.
+type edgeSet struct {
+	p     float64
+	split bool
+	pure  bool
+	sat   satPoint
+	l, v  thermo.State
+}
+
+// edges returns the phase boundary at p, reusing the last one computed when
+// p is the same (one machine's outlet pressure in a monitoring loop).
+func (f *Fluid) edges(p float64) (*edgeSet, error) {
+	if c := f.lastEdges.Load(); c != nil && c.p == p {
+		return c, nil
+	}
+	e := &edgeSet{p: p, pure: !f.pseudoPure}
+	if !f.pseudoPure {
+		if p >= f.satTriple.p {
+			sp, err := f.satAtP(p)
+			if err != nil {
+				return nil, err
+			}
+			e.sat, e.split = sp, true
+			e.l, e.v = f.satStates(sp)
+		}
+	} else {
+		Tb, okb := f.ancInvert(&f.ancPL, p)
+		Td, okd := f.ancInvert(&f.ancPV, p)
+		if okb && okd && Tb < Td {
+			l, err := f.statePT(p, Tb, thermo.PhaseLiquid, nil, 0)
+			if err != nil {
+				return nil, err
+			}
+			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
+			if err != nil {
+				return nil, err
+			}
+			e.l, e.v, e.split = l, v, true
+		}
+	}
+	f.lastEdges.Store(e)
+	return e, nil
 }

@@ -173,6 +173,8 @@ type Fluid struct {
 	// lastSatP caches the latest saturation state found from a pressure
 	// (repeated flashes at one outlet pressure reuse it).
 	lastSatP atomic.Pointer[satPoint]
+	// lastEdges caches the phase boundary of the latest (p,h)/(p,s) flash.
+	lastEdges atomic.Pointer[edgeSet]
 }
 
 var (

@@ -179,6 +179,7 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 		if math.Abs(Tn-T) <= 1e-14*T {
 			if math.Abs(sp.p-p) <= 1e-10*p {
 				sp.p = p
+				f.lastSatP.Store(&sp)
 				return sp, nil
 			}
 		}
