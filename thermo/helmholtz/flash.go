@@ -285,7 +285,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		last = s
 		v, d := value(&s)
 		fx := v - y
-		scale := d * T // y change for dT = T
+		scale := d * T                   // y change for dT = T
 		if math.Abs(fx) <= 1e-11*scale { // |T error| <= 1e-11 T
 			return s, nil
 		}
