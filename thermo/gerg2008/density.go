@@ -26,14 +26,20 @@ const (
 // replaced by a geometric bisection. The converged root is then checked:
 // dp/dD > 0, Z within [zMin, zMax], dp/dD > 0 at scanPoints densities
 // between 0 and the root (so no unstable loop lies below it, i.e. it is on the
-// gas branch, not a liquid root reached across the loop), and not liquid-like
+// gas branch, not a liquid root reached across the loop; skipped above the
+// mixture's loop-free temperature tLoop, see loopFreeTemperature), and not liquid-like
 // (T below the reducing temperature with the density above the reducing
 // density). A failed check is an error wrapping thermo.ErrPhase.
-func (m *Mixture) density(tc *tauCache, p float64) (float64, error) {
+//
+// D0 > 0 is a starting value (a nearby root, for warm starts); otherwise the
+// ideal gas is used.
+func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 	T := tc.T
 	RT := m.R * T
-	Dig := p / RT
-	D := Dig
+	D := p / RT
+	if D0 > 0 && D0 < deltaMax*m.Dr {
+		D = D0
+	}
 	lo, hi := 0.0, deltaMax*m.Dr
 	unstableHi := false // hi was set by a mechanically unstable point
 	converged := false
@@ -87,7 +93,7 @@ func (m *Mixture) density(tc *tauCache, p float64) (float64, error) {
 			Name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
 	}
 	delta := D / m.Dr
-	if delta > scanFromDelt {
+	if delta > scanFromDelt && T <= m.tLoop {
 		for k := 1; k < scanPoints; k++ {
 			if _, d := m.pressure(tc, D*float64(k)/scanPoints); !(d > 0) {
 				return 0, fmt.Errorf("%s: at T = %g K, p = %g Pa the only root found (%g kg/m3) lies beyond an unstable part of the isotherm (liquid side): %w",
@@ -100,4 +106,54 @@ func (m *Mixture) density(tc *tauCache, p float64) (float64, error) {
 			Name, T, 1000*p, m.Tr, D*m.mg, m.Dr*m.mg, thermo.ErrPhase)
 	}
 	return D, nil
+}
+
+// hasLoop reports whether the isotherm T has a mechanically unstable part
+// (dp/dD <= 0) at reduced densities 0.05, 0.10, ... up to deltaMax.
+func (m *Mixture) hasLoop(T float64) bool {
+	var tc tauCache
+	m.setTau(&tc, T)
+	for k := 1; float64(k)*0.05 <= deltaMax; k++ {
+		if _, d := m.pressure(&tc, m.Dr*float64(k)*0.05); !(d > 0) {
+			return true
+		}
+	}
+	return false
+}
+
+// loopFreeTemperature returns a temperature above which the mixture's
+// isotherms have no unstable part on the scanned grid, so that the gas-branch
+// scan of density can be skipped: the boundary found by bisection between
+// TMin and TMax, raised by 5 % and 5 K, after checking 10 temperatures above
+// it (if any of them has a loop, or TMax has one, the result is +Inf: always
+// scan). It costs about a millisecond, once per mixture.
+func (m *Mixture) loopFreeTemperature() float64 {
+	if m.hasLoop(TMax) {
+		return math.Inf(1)
+	}
+	if !m.hasLoop(TMin) {
+		lo := TMin
+		for k := 1; k <= 10; k++ {
+			if m.hasLoop(lo + (TMax-lo)*float64(k)/11) {
+				return math.Inf(1)
+			}
+		}
+		return TMin
+	}
+	lo, hi := TMin, TMax // loop at lo, none at hi
+	for hi-lo > 0.5 {
+		mid := 0.5 * (lo + hi)
+		if m.hasLoop(mid) {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	t := math.Min(TMax, 1.05*hi+5)
+	for k := 1; k <= 10; k++ {
+		if m.hasLoop(hi + (TMax-hi)*float64(k)/11) {
+			return math.Inf(1)
+		}
+	}
+	return t
 }

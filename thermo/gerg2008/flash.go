@@ -57,12 +57,17 @@ func checkPT(p, T float64) error {
 // PropertiesPT returns every property of the gas at pressure p in Pa and
 // temperature T in K, in molar SI units. Errors are as for Flash.
 func (m *Mixture) PropertiesPT(p, T float64) (Properties, error) {
+	return m.propertiesPT(p, T, 0)
+}
+
+// propertiesPT is PropertiesPT with a starting density D0 in mol/m3 (0: ideal gas).
+func (m *Mixture) propertiesPT(p, T, D0 float64) (Properties, error) {
 	if err := checkPT(p, T); err != nil {
 		return Properties{}, err
 	}
 	var tc tauCache
 	m.setTau(&tc, T)
-	D, err := m.density(&tc, p/1000)
+	D, err := m.density(&tc, p/1000, D0/1000)
 	if err != nil {
 		return Properties{}, err
 	}
@@ -216,11 +221,18 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 		quantity, unit = "s", "J/(kg K)"
 	}
 	// f(T) = property(T) - target, increasing in T; slope cp or cp/T.
+	var lastD float64 // warm start: the density at the previous temperature, scaled
+	var lastT float64
 	eval := func(T float64) (Properties, float64, float64, error) {
-		pr, err := m.PropertiesPT(p, T)
+		D0 := 0.0
+		if lastD > 0 {
+			D0 = lastD * lastT / T
+		}
+		pr, err := m.propertiesPT(p, T, D0)
 		if err != nil {
 			return pr, 0, 0, err
 		}
+		lastD, lastT = pr.D, T
 		if pair == thermo.PH {
 			return pr, pr.H/M - target, pr.Cp / M, nil
 		}

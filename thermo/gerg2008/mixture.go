@@ -143,6 +143,8 @@ type Mixture struct {
 	name string
 	// checkStability makes Flash run Stable on every result (WithStabilityCheck).
 	checkStability bool
+	// tLoop (K): above it no isotherm has an unstable part (loopFreeTemperature).
+	tLoop float64
 }
 
 // New returns the GERG-2008 model of a mixture given as mole fractions keyed
@@ -180,6 +182,7 @@ func New(composition map[string]float64) (*Mixture, error) {
 		c := &g.comps[i]
 		m.ig = append(m.ig, idealComp{x: x[i], lnx: math.Log(x[i]), N1: c.N1, N2: c.N2, N3: c.N3, nh: c.nh, th: c.th})
 	}
+	m.tLoop = m.loopFreeTemperature()
 	return m, nil
 }
 

@@ -381,7 +381,7 @@ func (m *Mixture) Stable(p, T float64) (bool, error) {
 	}
 	var tc tauCache
 	m.setTau(&tc, T)
-	Dz, err := m.density(&tc, p/1000)
+	Dz, err := m.density(&tc, p/1000, 0)
 	if err != nil {
 		return false, err
 	}
