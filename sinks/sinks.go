@@ -50,6 +50,7 @@ type Stats struct {
 	Queued        int64     // items held in memory, not yet delivered (count)
 	SpooledItems  int64     // items waiting in an on-disk spool (count)
 	SpooledBytes  int64     // size of the on-disk spool (bytes)
+	BufferedBytes int64     // bytes held in memory by a client library, e.g. the NATS reconnect buffer
 	Written       uint64    // items acknowledged by the destination (count)
 	Dropped       uint64    // accepted items that were lost: full queue, spool cap, permanent rejection by the server (count)
 	Rejected      uint64    // items refused at the door as invalid, e.g. a non-finite value (count)
