@@ -4,6 +4,7 @@ import (
 	"testing"
 
 	"github.com/exergywatch/exergywatch/thermo/idealgas"
+	"github.com/exergywatch/exergywatch/thermo/if97"
 )
 
 func benchEval(b *testing.B, spec *Spec, in *Inputs) {
@@ -33,4 +34,25 @@ func BenchmarkAirCompressorUncertainty(b *testing.B) {
 	benchEval(b, &Spec{Kind: Compressor, Fluid: idealgas.DryAir(), Inlet: ByPT, Outlet: ByPT,
 		Uncertainty: Uncertainty{T1: Std{Abs: 0.5}, T2: Std{Abs: 0.5}, P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, MassFlow: Std{Rel: 0.01}}},
 		&airCompressorIn)
+}
+
+// The steam turbine of `exergywatch calc`'s example: 16 MPa, 538 °C ->
+// 4 MPa, 338 °C, 250 kg/s.
+var steamTurbineIn = Inputs{P1: 16e6, T1: 811.15, P2: 4e6, T2: 611.15, MassFlow: 250}
+
+func BenchmarkSteamTurbine(b *testing.B) {
+	benchEval(b, &Spec{Kind: Turbine, Fluid: if97.Water{}, Inlet: ByPT, Outlet: ByPT}, &steamTurbineIn)
+}
+
+func BenchmarkSteamTurbineUncertainty(b *testing.B) {
+	benchEval(b, &Spec{Kind: Turbine, Fluid: if97.Water{}, Inlet: ByPT, Outlet: ByPT,
+		Uncertainty: Uncertainty{T1: Std{Abs: 0.5}, T2: Std{Abs: 0.5}, P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, MassFlow: Std{Rel: 0.01}}},
+		&steamTurbineIn)
+}
+
+// BenchmarkSteamTurbineWetEnergyBalance: wet exhaust fixed by shaft power.
+func BenchmarkSteamTurbineWetEnergyBalanceUncertainty(b *testing.B) {
+	benchEval(b, &Spec{Kind: Turbine, Fluid: if97.Water{}, Inlet: ByPT, Outlet: ByEnergyBalance, Power: ShaftPower,
+		Uncertainty: Uncertainty{T1: Std{Abs: 0.5}, P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, MassFlow: Std{Rel: 0.01}, Power: Std{Rel: 0.005}}},
+		&Inputs{P1: 0.8e6, T1: 600, P2: 5e3, MassFlow: 40, ShaftPower: 30.9e6})
 }

@@ -32,6 +32,16 @@ var inputLabels = [nIn]string{"inlet pressure", "inlet temperature", "inlet enth
 	"outlet pressure", "outlet temperature", "outlet vapour fraction", "mass flow", "measured power",
 	"declared heat flow", "drive efficiency"}
 
+// Ports of the flashes (memo index, error text).
+const (
+	portIn = iota
+	portOut
+	portIso
+	nPorts
+)
+
+var portNames = [nPorts]string{"inlet", "outlet", "isentropic outlet"}
+
 type evalOut struct {
 	in, out, iso thermo.State
 	fig          [NumFigures]float64
@@ -75,7 +85,10 @@ func Evaluate(spec *Spec, in *Inputs) (*Result, error) {
 		}
 	}
 	var o evalOut
-	if err := c.run(&x, &o); err != nil {
+	c.recording = true
+	err = c.run(&x, &o)
+	c.recording = false
+	if err != nil {
 		return nil, err
 	}
 	res := &Result{
@@ -312,10 +325,29 @@ func (c *resolved) defined(x *[nIn]float64) [NumFigures]bool {
 	return d
 }
 
-func (c *resolved) flash(port string, pair thermo.Pair, a, b float64) (thermo.State, error) {
+// memo is a state of the nominal evaluation. The propagation perturbs one
+// input at a time, so most of its flashes repeat a nominal one exactly (a
+// perturbed outlet temperature leaves the inlet and the isentropic outlet
+// unchanged); those are answered from the memo. Same inputs, same state: the
+// calculation is unchanged.
+type memo struct {
+	ok   bool
+	pair thermo.Pair
+	a, b float64
+	s    thermo.State
+}
+
+func (c *resolved) flash(port int, pair thermo.Pair, a, b float64) (thermo.State, error) {
+	m := &c.memo[port]
+	if m.ok && m.pair == pair && m.a == a && m.b == b {
+		return m.s, nil
+	}
 	s, err := c.Fluid.Flash(pair, a, b)
 	if err != nil {
-		return s, &StateError{Port: port, Pair: pair, A: a, B: b, Err: err}
+		return s, &StateError{Port: portNames[port], Pair: pair, A: a, B: b, Err: err}
+	}
+	if c.recording {
+		*m = memo{ok: true, pair: pair, a: a, b: b, s: s}
 	}
 	return s, nil
 }
@@ -326,11 +358,11 @@ func (c *resolved) run(x *[nIn]float64, o *evalOut) error {
 	var err error
 	switch c.Inlet {
 	case ByPT:
-		o.in, err = c.flash("inlet", thermo.PT, x[iP1], x[iT1])
+		o.in, err = c.flash(portIn, thermo.PT, x[iP1], x[iT1])
 	case ByPX:
-		o.in, err = c.flash("inlet", thermo.PX, x[iP1], x[iX1])
+		o.in, err = c.flash(portIn, thermo.PX, x[iP1], x[iX1])
 	case ByPH:
-		o.in, err = c.flash("inlet", thermo.PH, x[iP1], x[iH1])
+		o.in, err = c.flash(portIn, thermo.PH, x[iP1], x[iH1])
 	}
 	if err != nil {
 		return err
@@ -357,9 +389,9 @@ func (c *resolved) run(x *[nIn]float64, o *evalOut) error {
 	}
 	switch c.Outlet {
 	case ByPT:
-		o.out, err = c.flash("outlet", thermo.PT, x[iP2], x[iT2])
+		o.out, err = c.flash(portOut, thermo.PT, x[iP2], x[iT2])
 	case ByPX:
-		o.out, err = c.flash("outlet", thermo.PX, x[iP2], x[iX2])
+		o.out, err = c.flash(portOut, thermo.PX, x[iP2], x[iX2])
 	case ByEnergyBalance:
 		// Steady-flow energy balance, kinetic and potential terms neglected:
 		// turbine ṁ(h1 - h2) = W + Q; pump/compressor ṁ(h2 - h1) = W - Q.
@@ -369,12 +401,12 @@ func (c *resolved) run(x *[nIn]float64, o *evalOut) error {
 		} else {
 			h2 = o.in.H + (wf-Q)/m
 		}
-		o.out, err = c.flash("outlet", thermo.PH, x[iP2], h2)
+		o.out, err = c.flash(portOut, thermo.PH, x[iP2], h2)
 	}
 	if err != nil {
 		return err
 	}
-	o.iso, err = c.flash("isentropic outlet", thermo.PS, x[iP2], o.in.S)
+	o.iso, err = c.flash(portIso, thermo.PS, x[iP2], o.in.S)
 	if err != nil {
 		return err
 	}

@@ -31,6 +31,8 @@ const (
 //     uncertainty_above_limit (the method is unusable with these instruments);
 //   - thermodynamic vs measured power differing by more than U95 (2 % without
 //     uncertainty): uncertain, power_mismatch;
+//   - Schultz polytropic figures on a path that touches the two-phase
+//     region: uncertain, polytropic_two_phase;
 //   - a negative inferred heat flow on the shaft-power basis beyond U95: the
 //     measured power is below the enthalpy rise: bad, instrument_suspect.
 func (c *resolved) grade(res *Result, in *Inputs, wantU, nearIn, nearOut bool) {
@@ -138,6 +140,19 @@ func (c *resolved) grade(res *Result, in *Inputs, wantU, nearIn, nearOut bool) {
 			set(PowerMismatch, compute.QualityUncertain, ReasonPowerMismatch)
 			set(Power, compute.QualityUncertain, ReasonPowerMismatch)
 			res.Notes = append(res.Notes, fmt.Sprintf("thermodynamic power differs from the measured power by %.1f %% (more than its U95 %.1f %%)", 100*pm.Value, 100*b))
+		}
+	}
+	// Schultz across the saturation line: its constant volume exponent is a
+	// poor model of a wet expansion (2 points off the integrated path for a
+	// 600 K -> 5 kPa steam expansion, see TestSchultzSteam).
+	if res.PolytropicMethod == PolySchultz {
+		_, wet2 := res.Outlet.Quality()
+		_, wet1 := res.Inlet.Quality()
+		_, wets := res.IsentropicOutlet.Quality()
+		if wet1 || wet2 || wets {
+			set(PolytropicEfficiency, compute.QualityUncertain, ReasonPolytropicTwoPhase)
+			set(PolytropicHead, compute.QualityUncertain, ReasonPolytropicTwoPhase)
+			res.Notes = append(res.Notes, "the path crosses the saturation line: the Schultz polytropic figures are approximate there (use the integrated reference path)")
 		}
 	}
 	// Inferred heat on the shaft-power basis.

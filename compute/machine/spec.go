@@ -276,6 +276,7 @@ const (
 	ReasonUncertaintyAboveLimit     = "uncertainty_above_limit"
 	ReasonUncertaintyNotEvaluated   = "uncertainty_not_evaluated"
 	ReasonPowerMismatch             = "power_mismatch"
+	ReasonPolytropicTwoPhase        = "polytropic_two_phase"
 	ReasonNotComputable             = "not_computable"
 	ReasonOutOfRange                = "out_of_range"
 	ReasonStateNotFixed             = "state_not_fixed"
@@ -307,6 +308,9 @@ type resolved struct {
 	sat  thermo.Saturation
 	pc   float64 // critical pressure, Pa; +Inf when unknown
 	turb bool
+	// memo holds the nominal states while recording is false (see flash).
+	memo      [nPorts]memo
+	recording bool
 }
 
 func resolve(s *Spec) (*resolved, error) {
