@@ -346,3 +346,34 @@ func FuzzFlash(f *testing.F) {
 		}
 	})
 }
+
+// TestConcurrentUse: a Mixture is shared by goroutines (run with -race).
+func TestConcurrentUse(t *testing.T) {
+	m := DryAir()
+	done := make(chan error, 4)
+	for g := 0; g < 4; g++ {
+		go func(g int) {
+			for i := 0; i < 200; i++ {
+				T := 250 + float64(g*200+i)
+				st, err := m.Flash(thermo.PT, 1e5+float64(i)*1e3, T)
+				if err == nil {
+					var back thermo.State
+					back, err = m.Flash(thermo.PS, st.P, st.S)
+					if err == nil && math.Abs(back.T-T) > 1e-9*T {
+						err = errors.New("p,s round trip drifted")
+					}
+				}
+				if err != nil {
+					done <- err
+					return
+				}
+			}
+			done <- nil
+		}(g)
+	}
+	for g := 0; g < 4; g++ {
+		if err := <-done; err != nil {
+			t.Error(err)
+		}
+	}
+}
