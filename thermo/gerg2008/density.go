@@ -78,32 +78,32 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 	if !converged {
 		if unstableHi || hi-lo <= 1e-14*hi {
 			return 0, fmt.Errorf("%s: no gas root at T = %g K, p = %g Pa: the pressure exceeds the gas branch of the isotherm (liquid or two-phase): %w",
-				Name, T, 1000*p, thermo.ErrPhase)
+				m.name, T, 1000*p, thermo.ErrPhase)
 		}
-		return 0, fmt.Errorf("%s: density at T = %g K, p = %g Pa: %w", Name, T, 1000*p, thermo.ErrNoConvergence)
+		return 0, fmt.Errorf("%s: density at T = %g K, p = %g Pa: %w", m.name, T, 1000*p, thermo.ErrNoConvergence)
 	}
 	P, dPdD := m.pressure(tc, D)
 	Z := P / (D * RT)
 	if !(dPdD > 0) || math.Abs(P-p) > 1e-9*p {
 		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa is not a stable solution (dp/drho = %g): %w",
-			Name, T, 1000*p, dPdD, thermo.ErrPhase)
+			m.name, T, 1000*p, dPdD, thermo.ErrPhase)
 	}
 	if !(Z >= zMin && Z <= zMax) {
 		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa has Z = %g against the ideal gas, outside [%g, %g]: %w",
-			Name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
+			m.name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
 	}
 	delta := D / m.Dr
 	if delta > scanFromDelt && T <= m.tLoop {
 		for k := 1; k < scanPoints; k++ {
 			if _, d := m.pressure(tc, D*float64(k)/scanPoints); !(d > 0) {
 				return 0, fmt.Errorf("%s: at T = %g K, p = %g Pa the only root found (%g kg/m3) lies beyond an unstable part of the isotherm (liquid side): %w",
-					Name, T, 1000*p, D*m.mg, thermo.ErrPhase)
+					m.name, T, 1000*p, D*m.mg, thermo.ErrPhase)
 			}
 		}
 	}
-	if T < m.Tr && delta > 1 {
-		return 0, fmt.Errorf("%s: T = %g K, p = %g Pa gives a liquid-like state (T below the reducing temperature %.2f K, density %g kg/m3 above the reducing density %g kg/m3): %w",
-			Name, T, 1000*p, m.Tr, D*m.mg, m.Dr*m.mg, thermo.ErrPhase)
+	if T < m.tLiq && D > m.dLiq {
+		return 0, fmt.Errorf("%s: T = %g K, p = %g Pa gives a liquid-like state (T below the pseudo-critical %.2f K, density %g kg/m3 above the pseudo-critical %g kg/m3): %w",
+			m.name, T, 1000*p, m.tLiq, D*m.mg, m.dLiq*m.mg, thermo.ErrPhase)
 	}
 	return D, nil
 }
@@ -128,19 +128,19 @@ func (m *Mixture) hasLoop(T float64) bool {
 // it (if any of them has a loop, or TMax has one, the result is +Inf: always
 // scan). It costs about a millisecond, once per mixture.
 func (m *Mixture) loopFreeTemperature() float64 {
-	if m.hasLoop(TMax) {
+	if m.hasLoop(m.tMax) {
 		return math.Inf(1)
 	}
-	if !m.hasLoop(TMin) {
-		lo := TMin
+	if !m.hasLoop(m.tMin) {
+		lo := m.tMin
 		for k := 1; k <= 10; k++ {
-			if m.hasLoop(lo + (TMax-lo)*float64(k)/11) {
+			if m.hasLoop(lo + (m.tMax-lo)*float64(k)/11) {
 				return math.Inf(1)
 			}
 		}
-		return TMin
+		return m.tMin
 	}
-	lo, hi := TMin, TMax // loop at lo, none at hi
+	lo, hi := m.tMin, m.tMax // loop at lo, none at hi
 	for hi-lo > 0.5 {
 		mid := 0.5 * (lo + hi)
 		if m.hasLoop(mid) {
@@ -149,9 +149,9 @@ func (m *Mixture) loopFreeTemperature() float64 {
 			hi = mid
 		}
 	}
-	t := math.Min(TMax, 1.05*hi+5)
+	t := math.Min(m.tMax, 1.05*hi+5)
 	for k := 1; k <= 10; k++ {
-		if m.hasLoop(hi + (TMax-hi)*float64(k)/11) {
+		if m.hasLoop(hi + (m.tMax-hi)*float64(k)/11) {
 			return math.Inf(1)
 		}
 	}

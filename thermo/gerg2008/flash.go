@@ -36,20 +36,19 @@ func InNormalRange(p, T float64) bool {
 	return T >= TMinNormal && T <= TMaxNormal && p > 0 && p <= PMaxNormal
 }
 
-func checkPT(p, T float64) error {
-	if err := thermo.CheckFinite(Name, []string{"p", "T"}, p, T); err != nil {
+func (m *Mixture) checkPT(p, T float64) error {
+	if err := thermo.CheckFinite(m.name, []string{"p", "T"}, p, T); err != nil {
 		return err
 	}
-	const ctx = "GERG-2008 extended range 60-700 K, p <= 70 MPa"
 	switch {
 	case !(p > 0):
-		return thermo.Below(Name, "p", "Pa", p, 0, "pressure must be positive")
-	case p > PMax:
-		return thermo.Above(Name, "p", "Pa", p, PMax, ctx)
-	case T < TMin:
-		return thermo.Below(Name, "T", "K", T, TMin, ctx)
-	case T > TMax:
-		return thermo.Above(Name, "T", "K", T, TMax, ctx)
+		return thermo.Below(m.name, "p", "Pa", p, 0, "pressure must be positive")
+	case p > m.pMax:
+		return thermo.Above(m.name, "p", "Pa", p, m.pMax, m.rangeCtx)
+	case T < m.tMin:
+		return thermo.Below(m.name, "T", "K", T, m.tMin, m.rangeCtx)
+	case T > m.tMax:
+		return thermo.Above(m.name, "T", "K", T, m.tMax, m.rangeCtx)
 	}
 	return nil
 }
@@ -62,7 +61,7 @@ func (m *Mixture) PropertiesPT(p, T float64) (Properties, error) {
 
 // propertiesPT is PropertiesPT with a starting density D0 in mol/m3 (0: ideal gas).
 func (m *Mixture) propertiesPT(p, T, D0 float64) (Properties, error) {
-	if err := checkPT(p, T); err != nil {
+	if err := m.checkPT(p, T); err != nil {
 		return Properties{}, err
 	}
 	var tc tauCache
@@ -73,7 +72,7 @@ func (m *Mixture) propertiesPT(p, T, D0 float64) (Properties, error) {
 	}
 	pr := m.props(&tc, D)
 	if !finiteProps(&pr) {
-		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, p = %g Pa: %w", Name, T, p, thermo.ErrNoConvergence)
+		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, p = %g Pa: %w", m.name, T, p, thermo.ErrNoConvergence)
 	}
 	pr.P = p // equal to p(T, D) within 1e-9 relative (density checks this); report the input exactly
 	return pr, nil
@@ -85,24 +84,24 @@ func (m *Mixture) propertiesPT(p, T, D0 float64) (Properties, error) {
 // single-phase continuation, not a physical state). T must be in 60-700 K and
 // D positive and at most 6 times the reducing density.
 func (m *Mixture) PropertiesTD(T, D float64) (Properties, error) {
-	if err := thermo.CheckFinite(Name, []string{"T", "rho"}, T, D); err != nil {
+	if err := thermo.CheckFinite(m.name, []string{"T", "rho"}, T, D); err != nil {
 		return Properties{}, err
 	}
 	switch {
-	case T < TMin:
-		return Properties{}, thermo.Below(Name, "T", "K", T, TMin, "GERG-2008 extended range")
-	case T > TMax:
-		return Properties{}, thermo.Above(Name, "T", "K", T, TMax, "GERG-2008 extended range")
+	case T < m.tMin:
+		return Properties{}, thermo.Below(m.name, "T", "K", T, m.tMin, m.rangeCtx)
+	case T > m.tMax:
+		return Properties{}, thermo.Above(m.name, "T", "K", T, m.tMax, m.rangeCtx)
 	case !(D > 0):
-		return Properties{}, thermo.Below(Name, "rho", "mol/m3", D, 0, "")
+		return Properties{}, thermo.Below(m.name, "rho", "mol/m3", D, 0, "")
 	case D > deltaMax*m.Dr*1000:
-		return Properties{}, thermo.Above(Name, "rho", "mol/m3", D, deltaMax*m.Dr*1000, "6 times the reducing density")
+		return Properties{}, thermo.Above(m.name, "rho", "mol/m3", D, deltaMax*m.Dr*1000, "6 times the reducing density")
 	}
 	var tc tauCache
 	m.setTau(&tc, T)
 	pr := m.props(&tc, D/1000)
 	if !finiteProps(&pr) {
-		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, D = %g mol/m3: %w", Name, T, D, thermo.ErrNoConvergence)
+		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, D = %g mol/m3: %w", m.name, T, D, thermo.ErrNoConvergence)
 	}
 	return pr, nil
 }
@@ -134,7 +133,7 @@ func (m *Mixture) state(pr *Properties) (thermo.State, error) {
 		}
 		if !stable {
 			return thermo.State{}, fmt.Errorf("%s: the gas at T = %g K, p = %g Pa is unstable and splits into two phases (tangent-plane test; inside the phase envelope): %w",
-				Name, pr.T, pr.P, thermo.ErrPhase)
+				m.name, pr.T, pr.P, thermo.ErrPhase)
 		}
 	}
 	M := pr.M
@@ -153,7 +152,7 @@ func (m *Mixture) state(pr *Properties) (thermo.State, error) {
 		Phase:          thermo.PhaseGas,
 	}
 	if !s.Finite() {
-		return thermo.State{}, fmt.Errorf("%s: non-finite state at T = %g K, p = %g Pa: %w", Name, pr.T, pr.P, thermo.ErrNoConvergence)
+		return thermo.State{}, fmt.Errorf("%s: non-finite state at T = %g K, p = %g Pa: %w", m.name, pr.T, pr.P, thermo.ErrNoConvergence)
 	}
 	return s, nil
 }
@@ -195,7 +194,7 @@ func (m *Mixture) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 		if pair == thermo.PS {
 			names[1] = "s"
 		}
-		if err := thermo.CheckFinite(Name, names, a, b); err != nil {
+		if err := thermo.CheckFinite(m.name, names, a, b); err != nil {
 			return thermo.State{}, err
 		}
 		pr, err := m.flashPX(pair, a, b)
@@ -204,15 +203,15 @@ func (m *Mixture) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 		}
 		return m.state(&pr)
 	case thermo.PX, thermo.TX, thermo.HS:
-		return thermo.State{}, fmt.Errorf("%s: %v: %w (GERG-2008 here covers the single-phase gas; use p,T, p,h or p,s)", Name, pair, thermo.ErrUnsupported)
+		return thermo.State{}, fmt.Errorf("%s: %v: %w (GERG-2008 here covers the single-phase gas; use p,T, p,h or p,s)", m.name, pair, thermo.ErrUnsupported)
 	}
-	return thermo.State{}, fmt.Errorf("%s: %v: %w", Name, pair, thermo.ErrUnsupported)
+	return thermo.State{}, fmt.Errorf("%s: %v: %w", m.name, pair, thermo.ErrUnsupported)
 }
 
 // flashPX solves T at pressure p for a target enthalpy (PH, J/kg) or
 // entropy (PS, J/(kg K)).
 func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, error) {
-	if err := checkPT(p, 300); err != nil {
+	if err := m.checkPT(p, 300); err != nil {
 		return Properties{}, err
 	}
 	M := m.mg / 1000
@@ -238,7 +237,7 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 		}
 		return pr, pr.S/M - target, pr.Cp / M / T, nil
 	}
-	lo, hi := TMin, TMax
+	lo, hi := m.tMin, m.tMax
 	loPhase := false // lo is a temperature where no gas state exists
 	var hiSeen, loSeen bool
 	T := 300.0
@@ -273,19 +272,19 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 				continue
 			}
 			// The Newton step leaves the bracket: test the bounds of the range.
-			if Tn >= hi && !hiSeen && hi == TMax && T != TMax {
-				T = TMax
+			if Tn >= hi && !hiSeen && hi == m.tMax && T != m.tMax {
+				T = m.tMax
 				continue
 			}
-			if Tn <= lo && !loSeen && lo == TMin && T != TMin {
-				T = TMin
+			if Tn <= lo && !loSeen && lo == m.tMin && T != m.tMin {
+				T = m.tMin
 				continue
 			}
-			if T == TMax && f < 0 {
-				return pr, thermo.Above(Name, quantity, unit, target, f+target, fmt.Sprintf("%s at %g K and %g Pa, the upper temperature limit", quantity, TMax, p))
+			if T == m.tMax && f < 0 {
+				return pr, thermo.Above(m.name, quantity, unit, target, f+target, fmt.Sprintf("%s at %g K and %g Pa, the upper temperature limit", quantity, m.tMax, p))
 			}
-			if T == TMin && f > 0 {
-				return pr, thermo.Below(Name, quantity, unit, target, f+target, fmt.Sprintf("%s at %g K and %g Pa, the lower temperature limit", quantity, TMin, p))
+			if T == m.tMin && f > 0 {
+				return pr, thermo.Below(m.name, quantity, unit, target, f+target, fmt.Sprintf("%s at %g K and %g Pa, the lower temperature limit", quantity, m.tMin, p))
 			}
 		}
 		if hi-lo <= 1e-12*hi {
@@ -295,7 +294,7 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 	}
 	if loPhase {
 		return Properties{}, fmt.Errorf("%s: %s = %g %s at p = %g Pa lies below the gas region (two-phase or liquid): %w",
-			Name, quantity, target, unit, p, thermo.ErrPhase)
+			m.name, quantity, target, unit, p, thermo.ErrPhase)
 	}
-	return Properties{}, fmt.Errorf("%s: T from (p, %s) = (%g Pa, %g %s): %w", Name, quantity, p, target, unit, thermo.ErrNoConvergence)
+	return Properties{}, fmt.Errorf("%s: T from (p, %s) = (%g Pa, %g %s): %w", m.name, quantity, p, target, unit, thermo.ErrNoConvergence)
 }

@@ -145,6 +145,13 @@ type Mixture struct {
 	checkStability bool
 	// tLoop (K): above it no isotherm has an unstable part (loopFreeTemperature).
 	tLoop float64
+	// Below tLiq (K) a root denser than dLiq (mol/dm3) is liquid-like
+	// (GERG-2008: the reducing temperature and density).
+	tLiq, dLiq float64
+	// Accepted range: T in K, p in Pa, and the text for RangeError.Context.
+	tMin, tMax, pMax float64
+	rangeCtx         string
+	detail           bool // AGA8-DC92 DETAIL instead of GERG-2008 (NewDetail)
 }
 
 // New returns the GERG-2008 model of a mixture given as mole fractions keyed
@@ -162,7 +169,8 @@ func New(composition map[string]float64) (*Mixture, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Mixture{x: x, R: g.R, name: Name}
+	m := &Mixture{x: x, R: g.R, name: Name, tMin: TMin, tMax: TMax, pMax: PMax,
+		rangeCtx: "GERG-2008 extended range 60-700 K, p <= 70 MPa"}
 	for i := range nComp {
 		if x[i] > 0 {
 			m.mg += x[i] * g.comps[i].M
@@ -182,6 +190,7 @@ func New(composition map[string]float64) (*Mixture, error) {
 		c := &g.comps[i]
 		m.ig = append(m.ig, idealComp{x: x[i], lnx: math.Log(x[i]), N1: c.N1, N2: c.N2, N3: c.N3, nh: c.nh, th: c.th})
 	}
+	m.tLiq, m.dLiq = m.Tr, m.Dr
 	m.tLoop = m.loopFreeTemperature()
 	return m, nil
 }

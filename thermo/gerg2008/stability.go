@@ -372,7 +372,7 @@ func (e *phaseEval) fugacity(x *[nComp]float64, T, p float64, lnphi *[nComp]floa
 // milliseconds and allocates; Flash calls it only for a Mixture made with
 // WithStabilityCheck.
 func (m *Mixture) Stable(p, T float64) (bool, error) {
-	if err := checkPT(p, T); err != nil {
+	if err := m.checkPT(p, T); err != nil {
 		return false, err
 	}
 	g, err := loadData()
