@@ -154,6 +154,37 @@ func TestFlashHSRoundTrip(t *testing.T) {
 	}
 }
 
+// TestFlashHSRegion3Sweep: (h,s) -> state -> (h,s) over a dense grid of
+// region 3 (16.53-100 MPa, 623.15 K to the B23 line, outside 0.05 K of the
+// saturation line), with the state's p and T equal to the grid point
+// (tolerances as in TestFlashHSCrossCheck) and region 3 reported.
+func TestFlashHSRegion3Sweep(t *testing.T) {
+	n := 0
+	for p := Ps13 * 1.001; p <= Pmax; p *= 1.03 {
+		for T := T13 + 0.01; T <= b23T(p); T += 0.9 {
+			if p < b23p(T)*1.0001 || (p < Pc && math.Abs(T-tsat(p)) < 0.05) {
+				continue
+			}
+			rho, err := rho3PT(p, T)
+			if err != nil {
+				t.Fatal(err)
+			}
+			pr := region3(rho, T)
+			st, ok := checkHS(t, "region 3", pr.h, pr.s)
+			if !ok {
+				continue
+			}
+			if relErr(st.T, T) > 1e-8 || relErr(st.P, p) > 1e-6 || st.Region != 3 {
+				t.Errorf("region 3 p=%g T=%g: flashHS gives p %.12g T %.12g region %d", p, T, st.P, st.T, st.Region)
+			}
+			n++
+		}
+	}
+	if n < 2000 {
+		t.Errorf("only %d points", n)
+	}
+}
+
 // TestFlashHSRange: (h,s) outside IF97 return a *thermo.RangeError naming
 // h or s (never NaN, never a panic); non-finite inputs ErrNotFinite.
 func TestFlashHSRange(t *testing.T) {

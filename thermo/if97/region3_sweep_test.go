@@ -148,6 +148,47 @@ func TestRegion3RoundTrip(t *testing.T) {
 	}
 }
 
+// TestRegion3RoundTripNearSaturationAndCritical: the region3PH/region3PS
+// round trip of TestRegion3RoundTrip within 0.1 mK to 50 mK of the
+// saturation line (16.53-22.064 MPa, where the backward T is up to 25 mK
+// off and may start on the other side of the line) and on a fine grid
+// around the critical point (22.064-23.5 MPa, 645-652 K).
+func TestRegion3RoundTripNearSaturationAndCritical(t *testing.T) {
+	var pts [][2]float64
+	for p := Ps13 * 1.003; p < Pc; p *= 1.006 {
+		ts := tsat(p)
+		for _, dT := range []float64{-0.05, -0.01, -1e-3, -1e-4, 1e-4, 1e-3, 0.01, 0.05} {
+			pts = append(pts, [2]float64{p, ts + dT})
+		}
+	}
+	for p := Pc; p < 23.5e6; p += 0.03e6 {
+		for T := 645.0; T < 652; T += 0.037 {
+			if p >= b23p(T) {
+				pts = append(pts, [2]float64{p, T})
+			}
+		}
+	}
+	for _, c := range pts {
+		p, T := c[0], c[1]
+		rho, err := rho3PT(p, T)
+		if err != nil {
+			t.Fatalf("rho3PT(%g, %g): %v", p, T, err)
+		}
+		st := region3(rho, T)
+		r1, T1, err := region3PH(p, st.h)
+		if err != nil || relErr(T1, T) > 1e-9 || relErr(r1, rho) > 1e-9 {
+			t.Errorf("region3PH(%g, h(%g)) = %.12g, %.12g, %v; want %.12g, %.12g", p, T, r1, T1, err, rho, T)
+		}
+		r2, T2, err := region3PS(p, st.s)
+		if err != nil || relErr(T2, T) > 1e-9 || relErr(r2, rho) > 1e-9 {
+			t.Errorf("region3PS(%g, s(%g)) = %.12g, %.12g, %v; want %.12g, %.12g", p, T, r2, T2, err, rho, T)
+		}
+	}
+	if len(pts) < 5000 {
+		t.Fatalf("only %d points", len(pts))
+	}
+}
+
 // TestRegion3Continuity: region 3 meets region 1 on T = 623.15 K and
 // region 2 on the B23 line within the consistency that IAPWS R7-97(2012)
 // Section 6 states for the region-3 equation at these boundaries (from
