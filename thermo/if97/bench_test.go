@@ -16,7 +16,7 @@ import (
 
 type perfPoint struct{ p, T, h, s float64 }
 
-func loadPerf(b *testing.B, name string) []perfPoint {
+func loadPerf(b testing.TB, name string) []perfPoint {
 	b.Helper()
 	f, err := os.Open(filepath.Join(refDir, "perf_points", name))
 	if err != nil {

@@ -181,8 +181,8 @@ func flashPT(p, T float64) (thermo.State, error) {
 // HPT returns the specific enthalpy in J/kg at p in Pa and T in K: the
 // cheap path for callers that need h alone.
 func HPT(p, T float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"p", "T"}, p, T); err != nil {
-		return 0, err
+	if p-p != 0 || T-T != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"p", "T"}, p, T)
 	}
 	reg, err := regionPT(p, T)
 	if err != nil {
@@ -202,8 +202,8 @@ func HPT(p, T float64) (float64, error) {
 
 // SPT returns the specific entropy in J/(kg·K) at p in Pa and T in K.
 func SPT(p, T float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"p", "T"}, p, T); err != nil {
-		return 0, err
+	if p-p != 0 || T-T != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"p", "T"}, p, T)
 	}
 	reg, err := regionPT(p, T)
 	if err != nil {
@@ -441,6 +441,16 @@ func solvePY(k kind, p, y float64) (phsResult, error) {
 		}
 	case p <= Ps13:
 		Ts := min(tsat(p), T13)
+		// Fast path: a backward value well inside region 2 is solved in
+		// [Tsat, 1073.15 K]; a solution strictly inside that bracket
+		// proves y lies in region 2 (y(p,T) increases with T). Otherwise
+		// the saturated states decide.
+		if T0 := backward(k, 2, p, y); T0 > Ts+1 && T0 < T25-0.5 {
+			T, err := solveTreg(k, 2, p, y, Ts, T25, T0)
+			if err == nil && T > Ts*(1+1e-12) && T < T25*(1-1e-12) {
+				return phsResult{region: 2, T: T}, nil
+			}
+		}
 		yV := val(k, 2, p, Ts)
 		if y < yV {
 			l := region1(p, Ts)
@@ -453,25 +463,28 @@ func solvePY(k kind, p, y float64) (phsResult, error) {
 		}
 		Tlo = Ts
 	default:
-		if y <= val(k, 1, p, T13) {
-			return liquid(T13)
-		}
-		if p <= Pc {
-			Ts, l, v, err := satFromP(p)
-			if err != nil {
-				return phsResult{}, err
-			}
-			yL, yV := k.of(l), k.of(v)
-			if y >= yL && y <= yV {
-				x := 0.0
-				if yV > yL {
-					x = (y - yL) / (yV - yL)
-				}
-				return phsResult{region: 4, T: Ts, x: x, l: l, v: v}, nil
-			}
-		}
+		// above psat(623.15 K): region 2 lies beyond the B23 line; below
+		// it come region 1 (up to 623.15 K), the two-phase region (up to
+		// the critical pressure) and region 3
 		Tlo = b23T(p)
 		if y < val(k, 2, p, Tlo) {
+			if y <= val(k, 1, p, T13) {
+				return liquid(T13)
+			}
+			if p <= Pc {
+				Ts, l, v, err := satFromP(p)
+				if err != nil {
+					return phsResult{}, err
+				}
+				yL, yV := k.of(l), k.of(v)
+				if y >= yL && y <= yV {
+					x := 0.0
+					if yV > yL {
+						x = (y - yL) / (yV - yL)
+					}
+					return phsResult{region: 4, T: Ts, x: x, l: l, v: v}, nil
+				}
+			}
 			pr, err := solve3(k, p, y)
 			return phsResult{region: 3, T: pr.T, pr: pr}, err
 		}
@@ -539,8 +552,8 @@ func flashPS(p, s float64) (thermo.State, error) {
 // TPH returns the temperature in K at p in Pa and h in J/kg, solved on
 // the basic equations (Tsat inside the two-phase region).
 func TPH(p, h float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"p", "h"}, p, h); err != nil {
-		return 0, err
+	if p-p != 0 || h-h != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"p", "h"}, p, h)
 	}
 	r, err := solvePY(kindH, p, h)
 	return r.T, err
@@ -549,8 +562,8 @@ func TPH(p, h float64) (float64, error) {
 // TPS returns the temperature in K at p in Pa and s in J/(kg·K), solved
 // on the basic equations (Tsat inside the two-phase region).
 func TPS(p, s float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"p", "s"}, p, s); err != nil {
-		return 0, err
+	if p-p != 0 || s-s != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"p", "s"}, p, s)
 	}
 	r, err := solvePY(kindS, p, s)
 	return r.T, err
