@@ -565,24 +565,25 @@ type textFigure struct {
 	label string
 	scale float64
 	unit  string
+	big   string // unit used instead when |value| >= 1e6 SI (MW), "" for none
 }
 
 var textFigures = []textFigure{
-	{machine.IsentropicEfficiency, "isentropic efficiency", 100, "%"},
-	{machine.PolytropicEfficiency, "polytropic efficiency", 100, "%"},
-	{machine.PolytropicEfficiencyIntegrated, "polytropic eff. (integrated path)", 100, "%"},
-	{machine.PolytropicHead, "polytropic head", 1e-3, "kJ/kg"},
-	{machine.SpecificWork, "specific work", 1e-3, "kJ/kg"},
-	{machine.IsentropicSpecificWork, "isentropic specific work", 1e-3, "kJ/kg"},
-	{machine.SpecificEntropyGeneration, "specific entropy generation", 1e-3, "kJ/(kg K)"},
-	{machine.EntropyGenerationRate, "entropy generation rate", 1e-3, "kW/K"},
-	{machine.SpecificLostWork, "specific lost work T0*sgen", 1e-3, "kJ/kg"},
-	{machine.LostWorkRate, "lost work rate T0*Sgen", 1e-3, "kW"},
-	{machine.SecondLawEfficiency, "second-law efficiency", 100, "%"},
-	{machine.Power, "power", 1e-3, "kW"},
-	{machine.PumpHead, "pump head", 1, "m"},
-	{machine.PowerMismatch, "power: thermodynamic vs measured", 100, "%"},
-	{machine.HeatFlow, "heat removed (shaft basis)", 1e-3, "kW"},
+	{machine.IsentropicEfficiency, "isentropic efficiency", 100, "%", ""},
+	{machine.PolytropicEfficiency, "polytropic efficiency", 100, "%", ""},
+	{machine.PolytropicEfficiencyIntegrated, "polytropic eff. (integrated path)", 100, "%", ""},
+	{machine.PolytropicHead, "polytropic head", 1e-3, "kJ/kg", ""},
+	{machine.SpecificWork, "specific work", 1e-3, "kJ/kg", ""},
+	{machine.IsentropicSpecificWork, "isentropic specific work", 1e-3, "kJ/kg", ""},
+	{machine.SpecificEntropyGeneration, "specific entropy generation", 1e-3, "kJ/(kg K)", ""},
+	{machine.EntropyGenerationRate, "entropy generation rate", 1e-3, "kW/K", ""},
+	{machine.SpecificLostWork, "specific lost work T0*sgen", 1e-3, "kJ/kg", ""},
+	{machine.LostWorkRate, "lost work rate T0*Sgen", 1e-3, "kW", "MW"},
+	{machine.SecondLawEfficiency, "second-law efficiency", 100, "%", ""},
+	{machine.Power, "power", 1e-3, "kW", "MW"},
+	{machine.PumpHead, "pump head", 1, "m", ""},
+	{machine.PowerMismatch, "power: thermodynamic vs measured", 100, "%", ""},
+	{machine.HeatFlow, "heat removed (shaft basis)", 1e-3, "kW", "MW"},
 }
 
 func writeCalcText(w io.Writer, r *machine.Result, spec *machine.Spec) {
@@ -607,13 +608,17 @@ func writeCalcText(w io.Writer, r *machine.Result, spec *machine.Spec) {
 		if !f.Defined {
 			continue
 		}
+		scale, unit := tf.scale, tf.unit
+		if tf.big != "" && math.Abs(f.Value) >= 1e6 {
+			scale, unit = 1e-6, tf.big
+		}
 		v := "n/a"
 		if !math.IsNaN(f.Value) {
-			v = fmt.Sprintf("%.4g %s", f.Value*tf.scale, tf.unit)
+			v = fmt.Sprintf("%.4g %s", f.Value*scale, unit)
 		}
 		u := "-"
 		if f.HasU95 {
-			u = fmt.Sprintf("±%.3g %s", f.U95*tf.scale, tf.unit)
+			u = fmt.Sprintf("±%.3g %s", f.U95*scale, unit)
 		}
 		q := f.Quality.String()
 		if f.Quality.String() == "bad" {

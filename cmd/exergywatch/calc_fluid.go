@@ -7,6 +7,7 @@ import (
 	"github.com/exergywatch/exergywatch/thermo/gerg2008"
 	"github.com/exergywatch/exergywatch/thermo/helmholtz"
 	"github.com/exergywatch/exergywatch/thermo/idealgas"
+	"github.com/exergywatch/exergywatch/thermo/if97"
 )
 
 // calcFluid maps a config fluid name to a property model for calc. It hands
@@ -19,6 +20,11 @@ func calcFluid(name string, comp map[string]float64) (thermo.Fluid, error) {
 		return nil
 	}
 	switch name {
+	case "water", "steam":
+		if err := noComp(); err != nil {
+			return nil, err
+		}
+		return if97.Water{}, nil
 	case "air":
 		if err := noComp(); err != nil {
 			return nil, err
@@ -40,5 +46,5 @@ func calcFluid(name string, comp map[string]float64) (thermo.Fluid, error) {
 		}
 		return helmholtz.New(name)
 	}
-	return nil, fmt.Errorf("unknown fluid %q (air, ideal-gas, natural-gas, methane, ammonia, r134a, co2, nitrogen)", name)
+	return nil, fmt.Errorf("unknown fluid %q (water, air, ideal-gas, natural-gas, methane, ammonia, r134a, co2, nitrogen)", name)
 }

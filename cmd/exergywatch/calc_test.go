@@ -98,6 +98,52 @@ func runGolden(t *testing.T, cases []calcCase) {
 
 func TestCalcGoldenGas(t *testing.T) { runGolden(t, calcGasCases) }
 
+// Golden cases on water/steam (IAPWS-IF97).
+var calcWaterCases = []calcCase{
+	// The interface example of issue 4, verbatim.
+	{"steam_turbine", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=4MPa,T=338degC", "--flow", "250kg/s", "--T0", "298.15K"}, 0},
+	{"steam_turbine_json", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=4MPa,T=338degC", "--flow", "250kg/s", "--T0", "298.15K", "--u-T", "0.5K", "--u-p", "0.1%", "--json"}, 0},
+	// Wet exhaust by energy balance on shaft power.
+	{"steam_turbine_energy_balance", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=7kPa", "--shaft-power", "113.96MW", "--flow", "100kg/s", "--u-T", "0.5K", "--u-p", "0.1%",
+		"--u-flow", "1%", "--u-power", "0.5%", "--json"}, 0},
+	// Generator power, generator efficiency and mechanical loss.
+	{"steam_turbine_generator", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=7kPa", "--generator-power", "112MW", "--generator-efficiency", "98.5%", "--mech-loss", "0.6MW",
+		"--flow", "100kg/s"}, 0},
+	// Casing heat loss rejected at 60 degC, and a measured shaft power as cross-check.
+	{"steam_turbine_heat_loss", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=4MPa,T=335degC", "--flow", "250kg/s", "--heat-loss", "2MW", "--heat-rejection-T", "60degC",
+		"--shaft-power", "85MW", "--u-T", "0.5K", "--u-p", "0.1%", "--u-flow", "1%", "--u-power", "0.5%"}, 0},
+	// Wet steam at the inlet (p,x) and outlet (p,x).
+	{"nuclear_hp_turbine_px", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=6.9MPa,x=0.997",
+		"--outlet", "p=0.9MPa,x=0.87", "--flow", "1500kg/s", "--json"}, 0},
+	// Inlet by (p,h).
+	{"turbine_inlet_ph", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=4MPa,h=3537.34kJ/kg",
+		"--outlet", "p=0.8MPa,T=315degC"}, 0},
+	// The wet-exhaust trap: T at the exhaust equals Tsat(7 kPa) = 39.0 degC.
+	{"wet_exhaust_by_temperature_refused", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=16MPa,T=538degC",
+		"--outlet", "p=7kPa,T=39degC"}, 2},
+	// 2 K above saturation: computed as vapour, flagged.
+	{"near_saturation_outlet", []string{"--machine", "turbine", "--fluid", "water", "--inlet", "p=0.8MPa,T=600K",
+		"--outlet", "p=7kPa,T=41degC", "--json"}, 0},
+	// Feed pump 1.2 MPa, 460 K -> 20 MPa at eta 0.80 (python3-iapws row anchor_feedpump: T2 = 463.958 K):
+	// class A RTDs make the thermodynamic method unusable.
+	{"feed_pump_rtd_unusable", []string{"--machine", "pump", "--fluid", "water", "--inlet", "p=1.2MPa,T=460K",
+		"--outlet", "p=20MPa,T=463.958K", "--flow", "100kg/s", "--T-class", "rtd-A", "--u-p", "0.1%"}, 0},
+	{"feed_pump_json", []string{"--machine", "pump", "--fluid", "water", "--inlet", "p=1.2MPa,T=460K",
+		"--outlet", "p=20MPa,T=463.958K", "--flow", "100kg/s", "--u-T", "0.02K", "--corr-T", "0.5", "--u-p", "0.05%", "--json"}, 0},
+	// Mechanical vapour recompression with the integrated reference path.
+	{"mvr_compressor_reference_path", []string{"--machine", "compressor", "--fluid", "water", "--inlet", "p=50kPa,T=360K",
+		"--outlet", "p=150kPa,T=500K", "--flow", "5kg/s", "--reference-path"}, 0},
+	{"gauge_refused_water", []string{"--machine", "pump", "--fluid", "water", "--inlet", "p=2barg,T=20degC",
+		"--outlet", "p=10bar,T=20.1degC"}, 2},
+}
+
+func TestCalcGoldenWater(t *testing.T) { runGolden(t, calcWaterCases) }
+
 func TestCalcGaugeMessage(t *testing.T) {
 	_, _, e := runCalcArgs("--machine", "compressor", "--fluid", "air", "--inlet", "p=0barg,T=20degC", "--outlet", "p=5barg,T=200degC")
 	if !strings.Contains(e, "gauge") || !strings.Contains(e, "--inlet") {
