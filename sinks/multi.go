@@ -47,8 +47,9 @@ func (c MultiConfig) Validate() error {
 
 // Named pairs a sink with the name it has in configuration, logs and metrics.
 type Named struct {
-	Name string
-	Sink Sink
+	Name     string
+	Sink     Sink
+	QueueLen int // bound of this sink's queue (items); 0 means MultiConfig.QueueLen
 }
 
 // DropError reports the sinks that dropped an item because their queue was
@@ -123,6 +124,9 @@ func NewMulti(cfg MultiConfig, logger *slog.Logger, sinks ...Named) (*Multi, err
 		if n.Name == "" || n.Sink == nil {
 			return nil, fmt.Errorf("sinks: every sink needs a name and a value (got name %q)", n.Name)
 		}
+		if n.QueueLen < 0 || n.QueueLen > 1<<22 {
+			return nil, fmt.Errorf("sinks: sink %s: queue length %d out of range 0..4194304", n.Name, n.QueueLen)
+		}
 		if seen[n.Name] {
 			return nil, fmt.Errorf("sinks: sink name %q used twice: give each sink its own name", n.Name)
 		}
@@ -131,7 +135,11 @@ func NewMulti(cfg MultiConfig, logger *slog.Logger, sinks ...Named) (*Multi, err
 	ctx, cancel := context.WithCancel(context.Background())
 	m := &Multi{cfg: cfg, log: logger, runCtx: ctx, cancel: cancel}
 	for _, n := range sinks {
-		c := &child{name: n.Name, sink: n.Sink, q: make(chan item, cfg.QueueLen), done: make(chan struct{})}
+		ql := cfg.QueueLen
+		if n.QueueLen > 0 {
+			ql = n.QueueLen
+		}
+		c := &child{name: n.Name, sink: n.Sink, q: make(chan item, ql), done: make(chan struct{})}
 		m.children = append(m.children, c)
 		go m.work(c)
 	}
