@@ -452,3 +452,84 @@ func TestAirTwoPhaseBand(t *testing.T) {
 		}
 	}
 }
+
+// TestFlashSweep: over a (p,T) grid covering each equation's range (to
+// 3 Tc and 200 MPa), every (p,T) flash succeeds (air: or reports its
+// two-phase band as ErrPhase) and the (p,h) and (p,s) flashes return T to
+// 1e-9 relative (identity of the flashes, no source).
+func TestFlashSweep(t *testing.T) {
+	const n = 24
+	for _, name := range append(pureNames, "air-helmholtz") {
+		f := mustNew(t, name)
+		p0 := 0.5 * f.satTriple.p
+		if f.pseudoPure {
+			p0 = 1000
+		}
+		for i := 0; i <= n; i++ {
+			T := f.tmin + (min(f.tmax, 3*f.tc)-f.tmin)*math.Pow(float64(i)/n, 1.5)
+			for j := 0; j <= n; j++ {
+				p := p0 * math.Pow(min(f.pmax, 200e6)/p0, float64(j)/n)
+				s, err := f.Flash(thermo.PT, p, T)
+				if err != nil {
+					if !(f.pseudoPure && errors.Is(err, thermo.ErrPhase)) {
+						t.Errorf("%s PT p=%g T=%g: %v", name, p, T, err)
+					}
+					continue
+				}
+				for _, pr := range []thermo.Pair{thermo.PH, thermo.PS} {
+					b := s.H
+					if pr == thermo.PS {
+						b = s.S
+					}
+					r, err := f.Flash(pr, p, b)
+					if err != nil || relDiff(r.T, T) > 1e-9 {
+						t.Errorf("%s %v p=%g T=%g (%v): T %.12g, %v", name, pr, p, T, s.Phase, r.T, err)
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestNearSaturation: (p,T) just above and below the equation's own
+// saturation pressure (relative offsets 1e-2 down to 1e-10, temperatures
+// from the triple point to 1e-5 below Tc) gives liquid and vapour
+// respectively, and the (p,h), (p,s) flashes invert them to 1e-9.
+func TestNearSaturation(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		for i := 0; i <= 30; i++ {
+			T := f.tmin + (f.tc-f.tmin)*float64(i)/30
+			if i == 30 {
+				T = f.tc * (1 - 1e-5)
+			}
+			ps, err := f.SatP(T)
+			if err != nil {
+				t.Errorf("%s SatP(%g): %v", name, T, err)
+				continue
+			}
+			for _, e := range []float64{-1e-2, -1e-5, -1e-10, 1e-10, 1e-5, 1e-2} {
+				p := ps * (1 + e)
+				want := thermo.PhaseLiquid
+				if e < 0 {
+					want = thermo.PhaseVapour
+				}
+				s, err := f.Flash(thermo.PT, p, T)
+				if err != nil || s.Phase != want {
+					t.Errorf("%s T=%g p=psat(1%+g): %v, %v", name, T, e, s.Phase, err)
+					continue
+				}
+				for _, pr := range []thermo.Pair{thermo.PH, thermo.PS} {
+					b := s.H
+					if pr == thermo.PS {
+						b = s.S
+					}
+					r, err := f.Flash(pr, p, b)
+					if err != nil || relDiff(r.T, T) > 1e-9 || r.Phase != want {
+						t.Errorf("%s %v T=%g p=psat(1%+g): T %.12g %v, %v", name, pr, T, e, r.T, r.Phase, err)
+					}
+				}
+			}
+		}
+	}
+}

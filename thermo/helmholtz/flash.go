@@ -210,6 +210,16 @@ func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
 		if err != nil {
 			return thermo.State{}, err
 		}
+		if e.vOnly {
+			yv := e.v.S
+			if isH {
+				yv = e.v.H
+			}
+			if y < yv {
+				return thermo.State{}, fmt.Errorf("%s: p = %g Pa is below the bubble pressure at the triple point and this h or s lies below the dew-point vapour (%g K); two-phase air is not modelled: %w", f.name, p, e.v.T, thermo.ErrPhase)
+			}
+			lo, branch, sat = e.v.T, thermo.PhaseVapour, &e.v
+		}
 		if e.split {
 			yl, yv := e.l.S, e.v.S
 			if isH {
@@ -273,6 +283,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 	loKnown, hiKnown := edge != nil && branch == thermo.PhaseVapour, edge != nil && branch == thermo.PhaseLiquid
 	guess := 0.0
 	prevRho := 0.0
+	fxPrev := math.Inf(1)
 	var last thermo.State
 	for it := 0; it < 100; it++ {
 		s, err := state(T, guess)
@@ -298,6 +309,12 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		if !(d > 0) || math.IsNaN(Tn) {
 			Tn = math.NaN()
 		}
+		// Newton can cycle across the pseudo-critical inflection of h(T)
+		// or s(T); when the residual has not at least halved, bisect.
+		if loKnown && hiKnown && math.Abs(fx) > 0.5*fxPrev {
+			Tn = 0.5 * (lo + hi)
+		}
+		fxPrev = math.Abs(fx)
 		switch {
 		case !(Tn > lo):
 			if !loKnown {
@@ -322,8 +339,11 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 			if err != nil {
 				return thermo.State{}, err
 			}
-			vb, _ := value(&sb)
+			vb, db := value(&sb)
 			if (Tn == lo && vb > y) || (Tn == hi && vb < y) {
+				if math.Abs(vb-y) <= 1e-11*db*Tn {
+					return sb, nil // at the limit within rounding
+				}
 				return thermo.State{}, f.outside(isH, y, sb, vb-y)
 			}
 			if Tn == lo {
@@ -376,6 +396,7 @@ func (f *Fluid) outside(isH bool, y float64, sb thermo.State, fx float64) error 
 type edgeSet struct {
 	p     float64
 	split bool
+	vOnly bool // air below the triple-point bubble pressure: only the dew edge exists
 	pure  bool
 	sat   satPoint
 	l, v  thermo.State
@@ -410,6 +431,12 @@ func (f *Fluid) edges(p float64) (*edgeSet, error) {
 				return nil, err
 			}
 			e.l, e.v, e.split = l, v, true
+		} else if okd && !okb {
+			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
+			if err != nil {
+				return nil, err
+			}
+			e.v, e.vOnly = v, true
 		}
 	}
 	f.lastEdges.Store(e)

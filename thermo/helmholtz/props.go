@@ -138,7 +138,11 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 		} else {
 			lo = rho
 		}
-		if math.Abs(fx) <= 1e-13*p && dp > 0 {
+		// p is computed as rho R T (1 + delta ar_d); in a liquid at low
+		// pressure the bracket nearly cancels, so the attainable residual
+		// scales with rho R T, not with p.
+		tol := 1e-13*p + 1e-14*rho*f.r*T
+		if math.Abs(fx) <= tol && dp > 0 {
 			return rho, nil
 		}
 		next := math.NaN()
@@ -154,7 +158,7 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 		}
 		if math.Abs(next-rho) <= 1e-15*rho {
 			// Step below rounding: accept if the residual is small.
-			if math.Abs(fx) <= 1e-9*p && dp > 0 {
+			if math.Abs(fx) <= 1e-9*p+1e-12*rho*f.r*T && dp > 0 {
 				return rho, nil
 			}
 			if hi > 0 && hi-lo <= 4e-16*hi {
