@@ -9,8 +9,8 @@ import (
 // oxidiser (air).
 type Combustion struct {
 	// Products is the product gas, named "flue-gas": CO2, H2O, N2, O2 and
-	// Ar (plus whatever inert species the fuel and air bring that are not
-	// broken down, i.e. none: every species is reduced to its elements).
+	// Ar, each only if its amount is non-zero (every reactant species,
+	// inert or not, is reduced to its elements and reassembled).
 	Products *Mixture
 	// FuelAirRatio is kg of fuel per kg of air (the air as given, i.e.
 	// including its water vapour if humid).
