@@ -111,6 +111,17 @@ func (r *Result) Dominant(k int) int {
 //
 // nOut is the number of outputs of f. x is not modified.
 func Propagate(f Func, nOut int, x, u []float64, corr []Correlation) (*Result, error) {
+	return propagate(f, nOut, nil, x, u, corr)
+}
+
+// PropagateFrom is Propagate for a caller that has already evaluated the
+// model at the nominal inputs: y0 = f(x), len(y0) outputs. It saves one
+// model evaluation; y0 is copied, not retained.
+func PropagateFrom(f Func, y0, x, u []float64, corr []Correlation) (*Result, error) {
+	return propagate(f, len(y0), y0, x, u, corr)
+}
+
+func propagate(f Func, nOut int, y0, x, u []float64, corr []Correlation) (*Result, error) {
 	n := len(x)
 	if len(u) != n {
 		return nil, fmt.Errorf("%w: %d inputs but %d uncertainties", ErrInput, n, len(u))
@@ -147,7 +158,9 @@ func Propagate(f Func, nOut int, x, u []float64, corr []Correlation) (*Result, e
 	r.OK = make([]bool, nOut)
 
 	copy(xs, x)
-	if err := f(xs, r.Y); err != nil {
+	if y0 != nil {
+		copy(r.Y, y0)
+	} else if err := f(xs, r.Y); err != nil {
 		return nil, fmt.Errorf("%w: %w", ErrModel, err)
 	}
 	for k := range nOut {

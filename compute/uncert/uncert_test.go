@@ -195,3 +195,25 @@ func TestTempClassErrors(t *testing.T) {
 		t.Errorf("zero class: err = %v", err)
 	}
 }
+
+func TestPropagateFromMatchesPropagate(t *testing.T) {
+	calls := 0
+	f := func(x, y []float64) error { calls++; y[0] = x[0] * x[1]; return nil }
+	x, u := []float64{2, 3}, []float64{0.1, 0.2}
+	a, err := Propagate(f, 1, x, u, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n1 := calls
+	b, err := PropagateFrom(f, []float64{6}, x, u, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if calls-n1 != n1-1 {
+		t.Errorf("PropagateFrom made %d calls, Propagate %d; want one fewer", calls-n1, n1)
+	}
+	// GUM eq. 10: u^2 = (3*0.1)^2 + (2*0.2)^2 = 0.25.
+	if !near(a.U[0], 0.5, 1e-12) || !near(b.U[0], a.U[0], 1e-15) {
+		t.Errorf("u = %v, %v; want 0.5", a.U[0], b.U[0])
+	}
+}
