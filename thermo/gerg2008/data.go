@@ -28,7 +28,7 @@ const nComp = 21
 // evaluation keep its tau-dependent coefficients in arrays on the stack.
 // load checks that the data fit.
 const (
-	maxDelta  = 8   // largest integer delta exponent d (GERG-2008 uses up to 7)
+	maxDelta  = 10  // bound on integer delta exponents d (GERG-2008 uses up to 7, DETAIL up to 9)
 	maxC      = 8   // largest integer c in exp(-delta^c) (GERG-2008 uses up to 6)
 	maxTerms  = 256 // merged pure-fluid and polynomial departure terms
 	maxDep    = 64  // merged exponential departure terms

@@ -34,6 +34,16 @@ func TestEmbeddedDataIsCurrent(t *testing.T) {
 	if !bytes.Equal(ref, rawData) {
 		t.Fatal("data/gerg2008.json differs from testdata/reference/eos/gerg2008.json; copy it again")
 	}
+	refD, err := os.ReadFile("../../testdata/reference/eos/aga8_detail.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(refD, rawDetail) {
+		t.Fatal("data/aga8_detail.json differs from testdata/reference/eos/aga8_detail.json; copy it again")
+	}
+	if _, err := loadDetail(); err != nil {
+		t.Fatal(err)
+	}
 	g, err := loadData()
 	if err != nil {
 		t.Fatal(err)
@@ -300,8 +310,13 @@ func TestIsentropicEndState(t *testing.T) {
 // coefficient = -(dh/dp)_T / cp. Tolerance 1e-6 relative.
 func TestConsistency(t *testing.T) {
 	nist, _ := readChecks(t, "GERG-2008")
-	for ci, comp := range []map[string]float64{gas11, nist, {"methane": 0.5, "hydrogen": 0.5}, {"CO2": 0.9, "N2": 0.1}} {
-		m := mustNew(t, comp)
+	detail, err := NewDetail(gas11)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mixtures := []*Mixture{mustNew(t, gas11), mustNew(t, nist), mustNew(t, map[string]float64{"methane": 0.5, "hydrogen": 0.5}),
+		mustNew(t, map[string]float64{"CO2": 0.9, "N2": 0.1}), detail}
+	for ci, m := range mixtures {
 		for _, s := range []struct{ p, T float64 }{{6e6, 300}, {50e6, 400}, {1e6, 250}, {20e6, 500}} {
 			pr, err := m.PropertiesPT(s.p, s.T)
 			if err != nil {
@@ -357,7 +372,7 @@ func TestConsistency(t *testing.T) {
 				{"h = u + p/D", pr.H, pr.U + pr.P/D, 1e-12 * math.Max(1, math.Abs(pr.U)) / math.Max(math.Abs(pr.H), 1)},
 				{"g = h - T s", pr.G, pr.H - T*pr.S, 1e-11 * math.Max(math.Abs(T*pr.S), 1) / math.Max(math.Abs(pr.G), 1)},
 				{"Joule-Thomson", pr.JT, jt, 1e-5},
-				{"Z", pr.Z, pr.P / (D * 8.314472 * T), 1e-14},
+				{"Z", pr.Z, pr.P / (D * m.R * T), 1e-14},
 			}
 			for _, c := range checks {
 				if d := relDiff(c.got, c.want); d > c.tol {

@@ -122,21 +122,33 @@ func FuzzFlash(f *testing.F) {
 	f.Add(0.0, 0.0, 0.0, 1.0, uint8(1), 1e3, 60.0)
 	f.Add(0.25, 0.25, 0.25, 0.25, uint8(4), 1e6, 0.5)
 	f.Add(math.NaN(), 0.0, 0.0, 1.0, uint8(1), math.Inf(1), -1.0)
+	f.Add(0.9, 0.05, 0.03, 0.02, uint8(0x81), 6e6, 300.0) // DETAIL
+	f.Add(0.9, 0.05, 0.03, 0.02, uint8(0x41), 3e6, 250.0) // with the stability test
+	f.Add(0.6, 0.2, 0.1, 0.1, uint8(0x41), 5e6, 280.0)
 	f.Fuzz(func(t *testing.T, a, b, c, d float64, pair uint8, x, y float64) {
-		m, err := New(map[string]float64{"methane": a, "ethane": b, "n-hexane": c, "hydrogen": d})
+		newModel := New
+		if pair&0x80 != 0 {
+			newModel = NewDetail
+		}
+		m, err := newModel(map[string]float64{"methane": a, "ethane": b, "n-hexane": c, "hydrogen": d})
 		if err != nil {
 			if !errors.Is(err, ErrComposition) {
 				t.Fatalf("New error %v does not wrap ErrComposition", err)
 			}
 			return
 		}
-		p := thermo.Pair(pair % 8)
+		p := thermo.Pair(pair & 7)
 		st, err := m.Flash(p, x, y)
 		if err != nil {
 			return
 		}
 		if !st.Finite() || st.Phase != thermo.PhaseGas {
 			t.Fatalf("Flash(%v, %g, %g) = %+v", p, x, y, st)
+		}
+		if p == thermo.PT && pair&0x40 != 0 { // the stability test must not panic either
+			if _, err := m.Stable(x, y); err != nil && !m.detail && !errors.Is(err, thermo.ErrPhase) {
+				t.Fatalf("Stable(%g, %g) after a successful flash: %v", x, y, err)
+			}
 		}
 		var in float64
 		switch p {

@@ -1,6 +1,11 @@
 package gerg2008
 
-import "math"
+import (
+	"fmt"
+	"math"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
 
 // Wilson starting values for the stability test: critical pressure in MPa and
 // acentric factor of each component in published order. Values from memory
@@ -372,6 +377,9 @@ func (e *phaseEval) fugacity(x *[nComp]float64, T, p float64, lnphi *[nComp]floa
 // milliseconds and allocates; Flash calls it only for a Mixture made with
 // WithStabilityCheck.
 func (m *Mixture) Stable(p, T float64) (bool, error) {
+	if m.detail {
+		return false, fmt.Errorf("%s: the stability test is implemented for GERG-2008 only: %w", m.name, thermo.ErrUnsupported)
+	}
 	if err := m.checkPT(p, T); err != nil {
 		return false, err
 	}
