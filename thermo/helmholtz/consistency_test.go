@@ -328,7 +328,8 @@ func TestErrors(t *testing.T) {
 		{"h far too low", f, thermo.PH, 1e6, -1e7, thermo.ErrOutOfRange},
 		{"h far too high", f, thermo.PH, 1e6, 1e8, thermo.ErrOutOfRange},
 		{"s far too high", f, thermo.PS, 1e6, 1e6, thermo.ErrOutOfRange},
-		{"HS", f, thermo.HS, 1e6, 5000, thermo.ErrUnsupported},
+		{"HS s too high", f, thermo.HS, 1.5e6, 5e4, thermo.ErrOutOfRange},
+		{"HS h too low", f, thermo.HS, -1e7, 1000, thermo.ErrOutOfRange},
 		{"bad pair", f, thermo.Pair(99), 1, 1, thermo.ErrUnsupported},
 		{"air PX", air, thermo.PX, 1e6, 0.5, thermo.ErrUnsupported},
 		{"air between dew and bubble", air, thermo.PT, 1.15e6, 109.4, thermo.ErrPhase},
@@ -530,6 +531,42 @@ func TestNearSaturation(t *testing.T) {
 					}
 				}
 			}
+		}
+	}
+}
+
+// TestFlashHS: (h,s) flashes return the (p,T) or (T,x) state they came from
+// (identity of the flashes, no source): p and T to 1e-9 relative, quality to
+// 1e-9.
+func TestFlashHS(t *testing.T) {
+	cases := []struct {
+		fluid string
+		pair  thermo.Pair
+		a, b  float64
+	}{
+		{"ammonia", thermo.PT, 1.2e6, 370},      // superheated vapour
+		{"ammonia", thermo.PT, 1.5e6, 290},      // compressed liquid
+		{"ammonia", thermo.TX, 260, 0.3},        // wet
+		{"water-iapws95", thermo.PT, 10e6, 800}, // steam
+		{"water-iapws95", thermo.TX, 320, 0.9},  // wet steam
+		{"water-iapws95", thermo.PT, 30e6, 700}, // supercritical
+		{"co2", thermo.PT, 10e6, 300},           // liquid above pc
+		{"air-helmholtz", thermo.PT, 2e6, 300},
+		{"methane", thermo.PT, 5e6, 250},
+	}
+	for _, c := range cases {
+		f := mustNew(t, c.fluid)
+		s0, err := f.Flash(c.pair, c.a, c.b)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s, err := f.Flash(thermo.HS, s0.H, s0.S)
+		if err != nil {
+			t.Errorf("%s HS from %v(%g, %g): %v", c.fluid, c.pair, c.a, c.b, err)
+			continue
+		}
+		if relDiff(s.P, s0.P) > 1e-9 || relDiff(s.T, s0.T) > 1e-9 || math.Abs(s.X-s0.X) > 1e-9 || s.Phase != s0.Phase {
+			t.Errorf("%s HS: p %.12g T %.12g x %.10g %v; want p %.12g T %.12g x %.10g %v", c.fluid, s.P, s.T, s.X, s.Phase, s0.P, s0.T, s0.X, s0.Phase)
 		}
 	}
 }

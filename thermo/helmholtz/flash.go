@@ -15,9 +15,9 @@ var (
 )
 
 // Flash returns the state fixed by (a, b). Supported pairs: PT, PH, PS, PX,
-// TX. HS returns an error wrapping thermo.ErrUnsupported. Pseudo-pure air
-// has no two-phase model: PX, TX and states between its dew and bubble
-// lines return errors wrapping ErrUnsupported or ErrPhase.
+// TX and HS. Pseudo-pure air has no two-phase model: PX, TX and states
+// between its dew and bubble lines return errors wrapping ErrUnsupported or
+// ErrPhase.
 func (f *Fluid) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 	names := pairArgNames(pair)
 	if err := thermo.CheckFinite(f.name, names[:], a, b); err != nil {
@@ -38,6 +38,8 @@ func (f *Fluid) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 		s, err = f.flashPX(a, b)
 	case thermo.TX:
 		s, err = f.flashTX(a, b)
+	case thermo.HS:
+		s, err = f.flashHS(a, b)
 	default:
 		return thermo.State{}, fmt.Errorf("%s: input pair %v: %w", f.name, pair, thermo.ErrUnsupported)
 	}
@@ -441,4 +443,82 @@ func (f *Fluid) edges(p float64) (*edgeSet, error) {
 	}
 	f.lastEdges.Store(e)
 	return e, nil
+}
+
+// flashHS solves (h, s) as a one-dimensional problem in pressure: along an
+// isenthalp s(p) falls monotonically with (ds/dp)_h = -v/T in every phase,
+// so Newton's method in ln p on s(p, h) - s, each step a (p,h) flash,
+// safeguarded by bisection between 1 Pa and p_max, converges from any start.
+func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
+	loP, hiP := 1.0, f.pmax
+	loKnown, hiKnown := false, false
+	lnp := math.Log(min(1e6, f.pc))
+	var last error
+	for it := 0; it < 200; it++ {
+		p := math.Exp(lnp)
+		st, err := f.flashPY(p, h, true)
+		if err != nil {
+			var re *thermo.RangeError
+			if errors.As(err, &re) && re.Quantity == "h" {
+				// h below the (p, T_min) state: p too high for this h; h
+				// above (p, T_max): p too low.
+				if !re.Above {
+					hiP, hiKnown = p, true
+				} else {
+					loP, loKnown = p, true
+				}
+				if hiP/loP < 1+1e-12 {
+					return thermo.State{}, err
+				}
+				lnp = 0.5 * (math.Log(loP) + math.Log(hiP))
+				last = err
+				continue
+			}
+			if errors.Is(err, thermo.ErrPhase) {
+				// air between its dew and bubble states: no model there.
+				return thermo.State{}, err
+			}
+			return thermo.State{}, err
+		}
+		if !st.Finite() {
+			return thermo.State{}, fmt.Errorf("%s: (h,s) flash: non-finite state at p = %g Pa: %w", f.name, p, thermo.ErrNoConvergence)
+		}
+		fx := st.S - s // decreasing in p
+		if math.Abs(fx) <= 1e-11*max(math.Abs(s), f.r) {
+			return st, nil
+		}
+		ctx := fmt.Sprintf("value at h = %g J/kg and p = %g Pa", h, p)
+		if fx < 0 && p <= 1 {
+			return thermo.State{}, thermo.Above(f.name, "s", "J/(kg K)", s, st.S, ctx)
+		}
+		if fx > 0 && p >= f.pmax {
+			return thermo.State{}, thermo.Below(f.name, "s", "J/(kg K)", s, st.S, ctx)
+		}
+		if fx > 0 {
+			loP, loKnown = p, true
+		} else {
+			hiP, hiKnown = p, true
+		}
+		// d s / d ln p = -p v / T at constant h
+		d := -p * st.V / st.T
+		next := lnp - fx/d
+		if !(next > math.Log(loP)) || !(next < math.Log(hiP)) || math.IsNaN(next) {
+			switch {
+			case !(next > math.Log(loP)) && !loKnown:
+				next = math.Log(loP)
+			case !(next < math.Log(hiP)) && !hiKnown:
+				next = math.Log(hiP)
+			default:
+				next = 0.5 * (math.Log(loP) + math.Log(hiP))
+			}
+		}
+		if loKnown && hiKnown && hiP/loP < 1+1e-14 {
+			break
+		}
+		lnp = next
+	}
+	if last != nil {
+		return thermo.State{}, fmt.Errorf("%s: (h,s) flash at h = %g J/kg, s = %g J/(kg K) did not converge (%v): %w", f.name, h, s, last, thermo.ErrNoConvergence)
+	}
+	return thermo.State{}, fmt.Errorf("%s: (h,s) flash at h = %g J/kg, s = %g J/(kg K) did not converge: %w", f.name, h, s, thermo.ErrNoConvergence)
 }
