@@ -110,30 +110,55 @@ func flashHSWith(h, s float64, ph phFlash) (thermo.State, error) {
 	if err := thermo.CheckFinite(fluidName, []string{"h", "s"}, h, s); err != nil {
 		return thermo.State{}, err
 	}
+	// h outside [h(pmin, 273.15 K), h(pmin, 2273.15 K)] is out of range at
+	// every pressure (at 273.15 K h grows with p; in region 5 it falls).
+	if hmin := region1(hsPmin, Tmin).h; h < hmin {
+		return thermo.State{}, thermo.Below(fluidName, "h", "J/kg", h, hmin, "below h(611.213 Pa, 273.15 K)")
+	}
+	if hmax := region5(hsPmin, Tmax5).h; h > hmax {
+		return thermo.State{}, thermo.Above(fluidName, "h", "J/kg", h, hmax, "above h(611.213 Pa, 2273.15 K)")
+	}
 	tol := 1e-11 * math.Max(math.Abs(s), 100)
-	lnLo, lnHi := math.Log(hsPmin), math.Log(Pmax)
-	// Bracket in ln p: F(lnp) = s(p,h) - s is decreasing; okLo/okHi say
-	// whether the bracket ends are points where the flash succeeded (F > 0
-	// at lo, F < 0 at hi) rather than the range limits.
-	okLo, okHi := false, false
-	var stLo thermo.State // state at the lower bracket end, when okLo
+	lnMin, lnMax := math.Log(hsPmin), math.Log(Pmax)
+	// Bracket in ln p: F(lnp) = s(p,h) - s is decreasing. lnLo has F > 0
+	// (or is the range limit lnMin, or a pressure too low for the (p,h)
+	// flash); lnHi has F < 0 (or is lnMax, or a pressure at which h is out
+	// of range). A Newton step past an unevaluated range limit first tries
+	// the limit itself, so that out-of-range inputs are found in a few steps.
+	lnLo, lnHi := lnMin, lnMax
+	loTried, hiTried := false, false
+	okLo, okHi := false, false // a solved state with F > 0 / F < 0 exists
+	var stLo thermo.State      // the solved state at lnLo, when okLo
 	x := math.Log(hsStartP(h, s))
 	var last error
 	for it := 0; it < 100; it++ {
+		if x <= lnMin {
+			x, loTried = lnMin, true
+		}
+		if x >= lnMax {
+			x, hiTried = lnMax, true
+		}
 		p := math.Exp(x)
+		switch x {
+		case lnMin:
+			p = hsPmin // exactly: exp(log(p)) may round past the limit
+		case lnMax:
+			p = Pmax
+		}
 		st, err := ph(p, h)
 		if err != nil {
 			var re *thermo.RangeError
-			if errors.As(err, &re) && re.Quantity == "p" && !re.Above {
-				lnLo = x // pressure too low for the (p,h) flash
-			} else if errors.Is(err, thermo.ErrOutOfRange) {
-				lnHi = x // h unreachable at this pressure: the valid p lie below
-			} else {
+			switch {
+			case errors.As(err, &re) && re.Quantity == "p" && !re.Above:
+				lnLo, loTried = x, true // pressure too low for the (p,h) flash
+			case errors.Is(err, thermo.ErrOutOfRange):
+				lnHi, hiTried = x, true // h unreachable here: valid p lie below
+			default:
 				return thermo.State{}, err
 			}
 			last = err
-			if lnHi-lnLo < 1e-14 {
-				break
+			if lnHi-lnLo < 1e-14 || (okLo && lnHi-lnLo < 1e-9) {
+				break // the valid pressures end at lnHi: see below
 			}
 			x = 0.5 * (lnLo + lnHi)
 			continue
@@ -145,14 +170,27 @@ func flashHSWith(h, s float64, ph phFlash) (thermo.State, error) {
 			}
 			return st, nil
 		}
-		if F > 0 {
+		switch {
+		case F < 0 && x == lnMin:
+			// Even the lowest pressure gives a lower entropy: s is too high.
+			return thermo.State{}, thermo.Above(fluidName, "s", "J/(kg K)", s, st.S,
+				fmt.Sprintf("at h = %g J/kg the largest IF97 entropy is s(%g Pa, h)", h, hsPmin))
+		case F > 0 && x == lnMax:
+			return thermo.State{}, thermo.Below(fluidName, "s", "J/(kg K)", s, st.S,
+				fmt.Sprintf("at h = %g J/kg the smallest IF97 entropy is s(%g Pa, h)", h, Pmax))
+		case F > 0:
 			lnLo, okLo, stLo = x, true, st
-		} else {
+		default:
 			lnHi, okHi = x, true
 		}
 		// Newton step in ln p: dF/dlnp = -p v / T.
 		next := x + F*st.T/(p*st.V)
-		if !(next > lnLo && next < lnHi) {
+		switch {
+		case next <= lnLo && lnLo == lnMin && !loTried:
+			next = lnMin
+		case next >= lnHi && lnHi == lnMax && !hiTried:
+			next = lnMax
+		case !(next > lnLo && next < lnHi):
 			next = 0.5 * (lnLo + lnHi)
 		}
 		if lnHi-lnLo < 1e-15 {
@@ -160,28 +198,14 @@ func flashHSWith(h, s float64, ph phFlash) (thermo.State, error) {
 		}
 		x = next
 	}
-	// No pressure in range reproduces s: say which bound was crossed.
 	switch {
-	case okHi && !okLo:
-		// s(p,h) < s even at the lowest pressure tried: s is too high.
-		if st, err := ph(hsPmin, h); err == nil && st.S < s {
-			return thermo.State{}, thermo.Above(fluidName, "s", "J/(kg K)", s, st.S,
-				fmt.Sprintf("at h = %g J/kg the IF97 entropy is at most s(%g Pa, h)", h, hsPmin))
-		}
 	case okLo && !okHi:
-		// s(p,h) > s even at the highest valid pressure: s is too low.
+		// Every solved pressure gives a higher entropy, up to the highest
+		// pressure at which h is reachable: s is too low.
 		return thermo.State{}, thermo.Below(fluidName, "s", "J/(kg K)", s, stLo.S,
-			fmt.Sprintf("at h = %g J/kg no IF97 state above p = %g Pa has a lower entropy", h, math.Exp(lnLo)))
-	case !okLo && !okHi:
-		// The (p,h) flash failed everywhere: h itself is out of range.
-		if hmin := region1(hsPmin, Tmin).h; h < hmin {
-			return thermo.State{}, thermo.Below(fluidName, "h", "J/kg", h, hmin, "below h(611.213 Pa, 273.15 K)")
-		}
-		if hmax := region5(hsPmin, Tmax5).h; h > hmax {
-			return thermo.State{}, thermo.Above(fluidName, "h", "J/kg", h, hmax, "above h(611.213 Pa, 2273.15 K)")
-		}
-	}
-	if last != nil && errors.Is(last, thermo.ErrOutOfRange) {
+			fmt.Sprintf("at h = %g J/kg the smallest IF97 entropy is about s(%.6g Pa, h); h is out of range at higher pressures", h, math.Exp(lnLo)))
+	case !okLo && !okHi && last != nil:
+		// The (p,h) flash failed at every pressure tried.
 		var re *thermo.RangeError
 		if errors.As(last, &re) {
 			return thermo.State{}, re
