@@ -209,6 +209,9 @@ func (m *Multi) WriteRecord(ctx context.Context, r compute.Record) error {
 	rc := r
 	rc.Reasons = append([]string(nil), r.Reasons...)
 	rc.Figures = append([]compute.Figure(nil), r.Figures...)
+	for i := range rc.Figures {
+		rc.Figures[i].Reasons = append([]string(nil), rc.Figures[i].Reasons...)
+	}
 	return m.put(item{rec: &rc})
 }
 

@@ -11,6 +11,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/prometheus/client_golang/prometheus"
 	"go.uber.org/goleak"
 
 	"github.com/exergywatch/exergywatch/compute"
@@ -215,5 +216,45 @@ func TestMultiCopiesRecord(t *testing.T) {
 	}
 	if s := m.Stats()[0]; s.Written != 1 || s.Rejected != 0 {
 		t.Errorf("stats %+v", s)
+	}
+}
+
+func TestCollector(t *testing.T) {
+	stats := []sinks.Stats{{Name: "influx", Queued: 3, SpooledItems: 120, SpooledBytes: 4096, Written: 10, Dropped: 2, Rejected: 1,
+		LastError: "x", LastErrorTime: time.Unix(1764633600, 500000000)}}
+	reg := prometheus.NewPedanticRegistry()
+	if err := reg.Register(sinks.NewCollector(func() []sinks.Stats { return stats })); err != nil {
+		t.Fatal(err)
+	}
+	mfs, err := reg.Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := map[string]float64{}
+	for _, mf := range mfs {
+		for _, m := range mf.GetMetric() {
+			if l := m.GetLabel(); len(l) != 1 || l[0].GetName() != "sink" || l[0].GetValue() != "influx" {
+				t.Errorf("%s: labels %v", mf.GetName(), l)
+			}
+			switch {
+			case m.GetCounter() != nil:
+				got[mf.GetName()] = m.GetCounter().GetValue()
+			case m.GetGauge() != nil:
+				got[mf.GetName()] = m.GetGauge().GetValue()
+			}
+		}
+	}
+	want := map[string]float64{
+		"exergywatch_sink_queued_items": 3, "exergywatch_sink_spooled_items": 120, "exergywatch_sink_spooled_bytes": 4096,
+		"exergywatch_sink_buffered_bytes": 0, "exergywatch_sink_written_total": 10, "exergywatch_sink_dropped_total": 2,
+		"exergywatch_sink_rejected_total": 1, "exergywatch_sink_last_error_timestamp_seconds": 1764633600.5,
+	}
+	if len(got) != len(want) {
+		t.Errorf("got %d metrics, want %d: %v", len(got), len(want), got)
+	}
+	for k, v := range want {
+		if got[k] != v {
+			t.Errorf("%s = %v, want %v", k, got[k], v)
+		}
 	}
 }

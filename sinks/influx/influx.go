@@ -436,6 +436,15 @@ func (s *Sink) replay(force bool) {
 			s.log.Info("database back; spool replaying", "remaining_points", s.sp.points.Load())
 		}
 		s.failures = 0
+		// A long replay must not let the memory queue overflow: points that
+		// arrive meanwhile join the end of the spool (the order stays).
+		s.mu.Lock()
+		many := s.pendingPts >= s.cfg.BatchPoints
+		s.mu.Unlock()
+		if many {
+			data, n := s.take(s.cfg.MaxQueuedPoints)
+			s.spoolAppend(data, n)
+		}
 	}
 }
 

@@ -32,6 +32,9 @@ import (
 // found.
 func Binary() string {
 	if p := os.Getenv("VICTORIA_METRICS_BIN"); p != "" {
+		if _, err := os.Stat(p); err != nil {
+			return ""
+		}
 		return p
 	}
 	if p, err := exec.LookPath("victoria-metrics"); err == nil {
