@@ -102,3 +102,19 @@ func BenchmarkStableNearDew(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkDetailPT11 is the (p,T) state of the 11-component gas with AGA8-DC92 DETAIL.
+func BenchmarkDetailPT11(b *testing.B) {
+	m, err := NewDetail(gas11)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		st, err := m.Flash(thermo.PT, 6e6, 300)
+		if err != nil {
+			b.Fatal(err)
+		}
+		sinkState = st
+	}
+}

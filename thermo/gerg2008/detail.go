@@ -293,6 +293,7 @@ func NewDetail(composition map[string]float64) (*Mixture, error) {
 			ts.maxD = max(ts.maxD, k.d)
 		}
 	}
+	ts.indexT()
 	if len(ts.list) > maxTerms {
 		return nil, fmt.Errorf("gerg2008: DETAIL: %d merged terms exceed %d", len(ts.list), maxTerms)
 	}

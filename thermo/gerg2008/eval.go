@@ -13,13 +13,17 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 	tc.T = T
 	tc.tau = m.Tr / T
 	lt := math.Log(tc.tau)
+	var pw [maxTerms]float64
+	for i, t := range m.ts.tvals {
+		if t == 0 {
+			pw[i] = 1
+		} else {
+			pw[i] = math.Exp(t * lt)
+		}
+	}
 	for k := range m.ts.list {
 		tm := &m.ts.list[k]
-		if tm.t == 0 {
-			tc.nt[k] = tm.n
-		} else {
-			tc.nt[k] = tm.n * math.Exp(tm.t*lt)
-		}
+		tc.nt[k] = tm.n * pw[tm.ti]
 	}
 }
 
@@ -174,18 +178,20 @@ func (m *Mixture) ideal(T, D float64) (a0, a0t, a0tt float64) {
 				continue
 			}
 			u := c.th[k] / T
-			em2 := math.Exp(-2 * u)
+			em := math.Exp(-u)
+			em2 := em * em
+			r := 2 * u * em // u/sinh u = r/(1 - em2), u/cosh u = r/(1 + em2)
 			if k%2 == 0 {
 				// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for large u.
 				h0 += c.nh[k] * (u + math.Log1p(-em2) - ln2)
 				h1 += c.nh[k] * u * (1 + em2) / (1 - em2)
-				r := 2 * u * math.Exp(-u) / (1 - em2)
+				r /= 1 - em2
 				h2 += c.nh[k] * r * r
 			} else {
 				// -ln cosh u, -u tanh u, (u/cosh u)^2.
 				h0 -= c.nh[k] * (u + math.Log1p(em2) - ln2)
 				h1 -= c.nh[k] * u * (1 - em2) / (1 + em2)
-				r := 2 * u * math.Exp(-u) / (1 + em2)
+				r /= 1 + em2
 				h2 += c.nh[k] * r * r
 			}
 		}

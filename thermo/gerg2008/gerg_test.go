@@ -531,3 +531,23 @@ func TestNoAllocations(t *testing.T) {
 		}
 	}
 }
+
+// TestLoopFreeTemperature: a pure fluid's isotherms lose their van der Waals
+// loop at its critical temperature, which for GERG-2008's pure-fluid
+// equations is the Tc of the data file (methane 190.564 K, CO2 304.1282 K;
+// Kunz & Wagner 2012 via data/gerg2008.json). The skip threshold must lie
+// above it.
+func TestLoopFreeTemperature(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		Tc   float64
+	}{{"methane", 190.564}, {"carbon dioxide", 304.1282}} {
+		m := mustNew(t, map[string]float64{c.name: 1})
+		if !m.hasLoop(0.99*c.Tc) || m.hasLoop(1.01*c.Tc) {
+			t.Errorf("%s: loop at 0.99 Tc: %v (want true), at 1.01 Tc: %v (want false)", c.name, m.hasLoop(0.99*c.Tc), m.hasLoop(1.01*c.Tc))
+		}
+		if !(m.tLoop > c.Tc) {
+			t.Errorf("%s: loop-free temperature %g K not above Tc %g K", c.name, m.tLoop, c.Tc)
+		}
+	}
+}

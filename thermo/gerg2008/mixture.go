@@ -16,6 +16,7 @@ type term struct {
 	n, t float64
 	d, c int
 	e    int
+	ti   int // index of t in terms.tvals
 }
 
 type depExp struct{ eta, eps, beta, gamma float64 }
@@ -29,7 +30,23 @@ type terms struct {
 	depExp []depExp
 	maxD   int
 	usedC  [maxC]bool
-	cList  []int // the c values in use
+	cList  []int     // the c values in use
+	tvals  []float64 // the distinct tau exponents t
+}
+
+// indexT fills tvals and the terms' ti.
+func (ts *terms) indexT() {
+	seen := map[float64]int{}
+	for k := range ts.list {
+		t := ts.list[k].t
+		i, ok := seen[t]
+		if !ok {
+			i = len(ts.tvals)
+			seen[t] = i
+			ts.tvals = append(ts.tvals, t)
+		}
+		ts.list[k].ti = i
+	}
 }
 
 // buildTerms merges the residual terms of the composition x.
@@ -105,6 +122,7 @@ func buildTerms(g *gergData, x *[nComp]float64) (*terms, error) {
 			ts.maxD = k.d
 		}
 	}
+	ts.indexT()
 	if len(ts.list) > maxTerms || len(ts.depExp) > maxDepExp {
 		return nil, fmt.Errorf("gerg2008: %d merged terms, %d departure exponents exceed the fixed bounds %d, %d",
 			len(ts.list), len(ts.depExp), maxTerms, maxDepExp)
