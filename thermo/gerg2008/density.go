@@ -41,6 +41,9 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 		D = D0
 	}
 	lo, hi := 0.0, deltaMax*m.Dr
+	if D >= hi { // far above any gas density (e.g. 70 MPa at 60 K): start inside the bracket
+		D = 0.5 * hi
+	}
 	unstableHi := false // hi was set by a mechanically unstable point
 	converged := false
 	for it := 0; it < 200; it++ {
