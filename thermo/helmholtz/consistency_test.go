@@ -570,3 +570,33 @@ func TestFlashHS(t *testing.T) {
 		}
 	}
 }
+
+// TestFlashHSSweep: (h,s) flashes over the interior of the (p,T) grid of
+// TestFlashSweep return T to 1e-8 and p to 1e-6 relative. p is
+// ill-conditioned from (h,s) in compressed liquid, where (ds/dp)_h = -v/T is
+// tiny: a 1e-11 relative T tolerance of the inner (p,h) flash moves p by up
+// to about 1e-6 relative there (identity of the flashes, no source).
+func TestFlashHSSweep(t *testing.T) {
+	const n = 10
+	for _, name := range append(pureNames, "air-helmholtz") {
+		f := mustNew(t, name)
+		p0 := 0.5 * f.satTriple.p
+		if f.pseudoPure {
+			p0 = 1000
+		}
+		for i := 1; i < n; i++ {
+			T := f.tmin + (min(f.tmax, 3*f.tc)-f.tmin)*math.Pow(float64(i)/n, 1.5)
+			for j := 0; j <= n; j++ {
+				p := p0 * math.Pow(min(f.pmax, 200e6)/p0, float64(j)/n)
+				s, err := f.Flash(thermo.PT, p, T)
+				if err != nil {
+					continue
+				}
+				r, err := f.Flash(thermo.HS, s.H, s.S)
+				if err != nil || relDiff(r.T, T) > 1e-8 || relDiff(r.P, p) > 1e-6 {
+					t.Errorf("%s HS from p=%g T=%g (%v): p %.12g T %.12g, %v", name, p, T, s.Phase, r.P, r.T, err)
+				}
+			}
+		}
+	}
+}

@@ -455,14 +455,20 @@ func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
 	lnp := math.Log(min(1e6, f.pc))
 	var last error
 	for it := 0; it < 200; it++ {
-		p := math.Exp(lnp)
+		p := min(max(math.Exp(lnp), 1), f.pmax)
 		st, err := f.flashPY(p, h, true)
 		if err != nil {
 			var re *thermo.RangeError
 			if errors.As(err, &re) && re.Quantity == "h" {
-				// h below the (p, T_min) state: p too high for this h; h
-				// above (p, T_max): p too low.
-				if !re.Above {
+				// h below the (p, T_min) state: p too high for this h (a
+				// liquid there), or too low when (p, T_min) is vapour, i.e.
+				// p under the triple-point saturation pressure; h above
+				// (p, T_max): p too low.
+				pTrip := f.satTriple.p
+				if f.pseudoPure {
+					pTrip = f.ancPV.eval(f.tmin)
+				}
+				if !re.Above && p > pTrip {
 					hiP, hiKnown = p, true
 				} else {
 					loP, loKnown = p, true
