@@ -480,17 +480,24 @@ func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
 				last = err
 				continue
 			}
-			if errors.Is(err, thermo.ErrPhase) {
-				// air between its dew and bubble states: no model there.
+			e, eerr := f.edges(p)
+			if !errors.Is(err, thermo.ErrPhase) || !f.pseudoPure || eerr != nil || !e.split {
 				return thermo.State{}, err
 			}
-			return thermo.State{}, err
+			// Air between its bubble and dew states at this p: no model
+			// there, but a lever-rule estimate between the two edges tells
+			// which way the single-phase answer lies.
+			x := (h - e.l.H) / (e.v.H - e.l.H)
+			st = thermo.State{P: p, T: e.l.T + x*(e.v.T-e.l.T), V: e.l.V + x*(e.v.V-e.l.V), S: e.l.S + x*(e.v.S-e.l.S)}
+			if math.Abs(st.S-s) <= 1e-9*max(math.Abs(s), f.r) {
+				return thermo.State{}, err // the (h,s) state is inside the band
+			}
 		}
 		if !st.Finite() {
 			return thermo.State{}, fmt.Errorf("%s: (h,s) flash: non-finite state at p = %g Pa: %w", f.name, p, thermo.ErrNoConvergence)
 		}
 		fx := st.S - s // decreasing in p
-		if math.Abs(fx) <= 1e-11*max(math.Abs(s), f.r) {
+		if math.Abs(fx) <= 1e-11*max(math.Abs(s), f.r) && err == nil {
 			return st, nil
 		}
 		ctx := fmt.Sprintf("value at h = %g J/kg and p = %g Pa", h, p)
