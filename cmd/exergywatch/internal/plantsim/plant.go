@@ -86,7 +86,7 @@ type machine struct {
 	id, kind string
 	fluid    thermo.Fluid
 	// design point (SI)
-	p1, T1, p2, flow float64
+	p1, T1, p2, flow  float64
 	eta0              float64 // isentropic efficiency at full load, new
 	degrades          bool
 	genEff, mechLossW float64 // turbine with generator power tag
