@@ -15,6 +15,7 @@ import (
 	"github.com/exergywatch/exergywatch/compute/uncert"
 	"github.com/exergywatch/exergywatch/config/units"
 	"github.com/exergywatch/exergywatch/thermo"
+	"github.com/exergywatch/exergywatch/thermo/fluids"
 )
 
 func init() {
@@ -57,7 +58,14 @@ Uncertainties (standard uncertainties, k = 1; "%" means of the reading):
   --corr-T 0.8  --corr-p 0     correlation of inlet/outlet errors (matched sensors)
   --u95-limit 5%               efficiency U95 above which the method is unusable
 
-Other: --composition N2=0.78,O2=0.21,Ar=0.01 (mole fractions, mixtures)
+Fluids: water, air, humid-air, flue-gas, ideal-gas, natural-gas, methane, ammonia,
+  r134a, co2, nitrogen (see thermo/fluids).
+  --composition CH4=0.9,C2H6=0.06,N2=0.04   mole fractions (natural-gas, ideal-gas,
+                               the fuel of flue-gas; H2O=0.02 for humid-air)
+  --humidity 60% --ambient-T 20degC --ambient-p 101.325kPa   humid-air
+  --excess-air 15%             flue-gas
+
+Other:
        --reference-path (integrate the constant-efficiency path; slow)  --json
 `
 
@@ -155,34 +163,12 @@ func parseStd(s string, k units.Kind) (machine.Std, error) {
 	return machine.Std{Abs: v}, nil
 }
 
-func parseComposition(s string) (map[string]float64, error) {
-	if strings.TrimSpace(s) == "" {
-		return nil, nil
-	}
-	m := map[string]float64{}
-	for _, item := range strings.Split(s, ",") {
-		k, v, ok := strings.Cut(item, "=")
-		k = strings.TrimSpace(k)
-		if !ok || k == "" {
-			return nil, fmt.Errorf("composition item %q is not name=fraction", item)
-		}
-		f, err := units.Parse(v, units.Fraction)
-		if err != nil || !(f >= 0 && f <= 1) {
-			return nil, fmt.Errorf("composition fraction %q of %s must be in [0, 1]", v, k)
-		}
-		if _, dup := m[k]; dup {
-			return nil, fmt.Errorf("component %q given twice", k)
-		}
-		m[k] = f
-	}
-	return m, nil
-}
-
 // calcFlags holds the raw flag values.
 type calcFlags struct {
 	machine, fluid, composition, inlet, outlet          string
 	flow, t0, shaft, gen, genEff, motor, motorEff, mech string
 	heatLoss, cooling, heatRejT, basis, margin, limit   string
+	rh, ambT, ambP, excessAir                           string
 	uT, uT1, uT2, uP, uP1, uP2, uX, uH1, uFlow, uPower  string
 	uHeat, uEta, tClass, t1Class, t2Class, corrT, corrP string
 	refPath, jsonOut                                    bool
@@ -203,6 +189,10 @@ func runCalc(args []string, stdout, stderr io.Writer) int {
 	s(&f.machine, "machine", "")
 	s(&f.fluid, "fluid", "")
 	s(&f.composition, "composition", "")
+	s(&f.rh, "humidity", "")
+	s(&f.ambT, "ambient-T", "")
+	s(&f.ambP, "ambient-p", "")
+	s(&f.excessAir, "excess-air", "")
 	s(&f.inlet, "inlet", "")
 	s(&f.outlet, "outlet", "")
 	s(&f.flow, "flow", "")
@@ -276,6 +266,19 @@ func runCalc(args []string, stdout, stderr io.Writer) int {
 
 func oneLine(err error) string { return strings.ReplaceAll(err.Error(), "\n", "; ") }
 
+// parseOpt parses an optional flag value of kind k into dst (SI).
+func parseOpt(dst *float64, s, name string, k units.Kind) error {
+	if s == "" {
+		return nil
+	}
+	v, err := units.Parse(s, k)
+	if err != nil {
+		return fmt.Errorf("--%s: %w", name, err)
+	}
+	*dst = v
+	return nil
+}
+
 // build turns the flags into a machine spec and SI inputs.
 func (f *calcFlags) build() (*machine.Spec, *machine.Inputs, error) {
 	if f.machine == "" || f.fluid == "" || f.inlet == "" || f.outlet == "" {
@@ -285,11 +288,21 @@ func (f *calcFlags) build() (*machine.Spec, *machine.Inputs, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	comp, err := parseComposition(f.composition)
-	if err != nil {
-		return nil, nil, fmt.Errorf("--composition: %w", err)
+	fspec := fluids.Spec{Name: f.fluid}
+	if f.composition != "" {
+		if fspec.Composition, err = fluids.ParseComposition(f.composition); err != nil {
+			return nil, nil, fmt.Errorf("--composition: %w", err)
+		}
 	}
-	fl, err := calcFluid(f.fluid, comp)
+	if err := errors.Join(
+		parseOpt(&fspec.RelativeHumidity, f.rh, "humidity", units.Fraction),
+		parseOpt(&fspec.AmbientT, f.ambT, "ambient-T", units.Temperature),
+		parseOpt(&fspec.AmbientP, f.ambP, "ambient-p", units.Pressure),
+		parseOpt(&fspec.ExcessAir, f.excessAir, "excess-air", units.Fraction),
+	); err != nil {
+		return nil, nil, err
+	}
+	fl, err := fluids.FromSpec(fspec)
 	if err != nil {
 		return nil, nil, fmt.Errorf("--fluid %s: %w", f.fluid, err)
 	}
@@ -324,17 +337,7 @@ func (f *calcFlags) build() (*machine.Spec, *machine.Inputs, error) {
 	default:
 		spec.Outlet = machine.ByEnergyBalance
 	}
-	num := func(dst *float64, s, name string, k units.Kind) error {
-		if s == "" {
-			return nil
-		}
-		v, err := units.Parse(s, k)
-		if err != nil {
-			return fmt.Errorf("--%s: %w", name, err)
-		}
-		*dst = v
-		return nil
-	}
+	num := parseOpt
 	var genEff, motorEff float64
 	var heatLoss, cooling float64
 	errs := []error{
@@ -468,9 +471,16 @@ func (f *calcFlags) uncertainties(spec *machine.Spec) error {
 		*dst = c
 		return nil
 	}
-	errs = append(errs,
-		class(&U.T1Class, pick(f.t1Class, f.tClass), "T1-class"),
-		class(&U.T2Class, pick(f.t2Class, f.tClass), "T2-class"))
+	if f.t1Class == "" && f.t2Class == "" && f.tClass != "" {
+		if err := class(&U.T1Class, f.tClass, "T-class"); err != nil {
+			return err
+		}
+		U.T2Class = U.T1Class
+	} else {
+		errs = append(errs,
+			class(&U.T1Class, pick(f.t1Class, f.tClass), "T1-class"),
+			class(&U.T2Class, pick(f.t2Class, f.tClass), "T2-class"))
+	}
 	corr := func(dst *float64, s, name string) error {
 		if s == "" {
 			return nil
@@ -486,11 +496,11 @@ func (f *calcFlags) uncertainties(spec *machine.Spec) error {
 	return errors.Join(errs...)
 }
 
-// round9 keeps 9 significant digits: more than any plant measurement
+// round7 keeps 7 significant digits: more than any plant measurement
 // supports, few enough that output does not churn with the last bits of a
-// property model.
-func round9(v float64) float64 {
-	r, _ := strconv.ParseFloat(strconv.FormatFloat(v, 'g', 9, 64), 64)
+// property model's iterations.
+func round7(v float64) float64 {
+	r, _ := strconv.ParseFloat(strconv.FormatFloat(v, 'g', 7, 64), 64)
 	return r
 }
 
@@ -498,7 +508,7 @@ func jsonNum(v float64) any {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return nil
 	}
-	return round9(v)
+	return round7(v)
 }
 
 func stateJSON(s thermo.State) map[string]any {

@@ -72,6 +72,14 @@ var calcGasCases = []calcCase{
 	{"gauge_refused", []string{"--machine", "compressor", "--fluid", "air", "--inlet", "p=0barg,T=20degC",
 		"--outlet", "p=5barg,T=200degC"}, 2},
 	{"missing_flags", []string{"--machine", "compressor"}, 2},
+	{"help", []string{"-h"}, 0},
+	{"stray_argument", []string{"--machine", "pump", "extra"}, 2},
+	{"both_heat_flags", []string{"--machine", "compressor", "--fluid", "air", "--inlet", "p=1bar,T=300K",
+		"--outlet", "p=4bar,T=450K", "--flow", "1kg/s", "--heat-loss", "1kW", "--cooling-duty", "2kW"}, 2},
+	{"generator_on_pump", []string{"--machine", "pump", "--fluid", "air", "--inlet", "p=1bar,T=300K",
+		"--outlet", "p=4bar", "--flow", "1kg/s", "--generator-power", "1kW", "--generator-efficiency", "95%"}, 2},
+	{"bad_class", []string{"--machine", "compressor", "--fluid", "air", "--inlet", "p=1bar,T=300K",
+		"--outlet", "p=4bar,T=450K", "--T-class", "rtd-Z"}, 2},
 	{"energy_balance_without_power", []string{"--machine", "compressor", "--fluid", "air", "--inlet", "p=1bar,T=300K",
 		"--outlet", "p=4bar", "--flow", "1kg/s"}, 2},
 	{"unknown_flag", []string{"--machine", "compressor", "--colour"}, 2},
@@ -138,6 +146,11 @@ var calcWaterCases = []calcCase{
 	// Mechanical vapour recompression with the integrated reference path.
 	{"mvr_compressor_reference_path", []string{"--machine", "compressor", "--fluid", "water", "--inlet", "p=50kPa,T=360K",
 		"--outlet", "p=150kPa,T=500K", "--flow", "5kg/s", "--reference-path"}, 0},
+	// Real-fluid and mixture models through thermo/fluids.
+	{"methane_compressor", []string{"--machine", "compressor", "--fluid", "methane", "--inlet", "p=2MPa,T=300K",
+		"--outlet", "p=6MPa,T=395K", "--flow", "30kg/s", "--u-T", "0.3K", "--u-p", "0.1%"}, 0},
+	{"flue_gas_expander", []string{"--machine", "turbine", "--fluid", "flue-gas", "--composition", "CH4=1", "--excess-air", "150%",
+		"--inlet", "p=1.6MPa,T=1400K", "--outlet", "p=105kPa,T=820K", "--flow", "400kg/s", "--json"}, 0},
 	{"gauge_refused_water", []string{"--machine", "pump", "--fluid", "water", "--inlet", "p=2barg,T=20degC",
 		"--outlet", "p=10bar,T=20.1degC"}, 2},
 }
