@@ -238,3 +238,21 @@ func FuzzHS(f *testing.F) {
 		}
 	})
 }
+
+// BenchmarkFlashHS: full states from (h,s) in regions 1, 2, 3 and wet.
+func BenchmarkFlashHS(b *testing.B) {
+	pts := [][2]float64{{305.2469e3, 0.93266e3}, {3373.877e3, 6.42506e3}, {2276.17e3, 4.68515e3}, {2392.52e3, 7.54892e3}}
+	b.ReportAllocs()
+	var sink float64
+	for i := 0; b.Loop(); i++ {
+		pt := pts[i&3]
+		st, err := flashHS(pt[0], pt[1])
+		if err != nil {
+			b.Fatal(err)
+		}
+		sink += st.T
+	}
+	if math.IsNaN(sink) {
+		b.Fatal("NaN")
+	}
+}

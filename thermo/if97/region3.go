@@ -263,6 +263,11 @@ func newton3(p, target float64, useS bool, rho, T float64) (float64, float64, er
 		}
 		rho += dRho
 		T += dT
+		// A full Newton step this small leaves residuals of second order
+		// (below 1e-18 relative): accept it without another evaluation.
+		if f == 1 && math.Abs(dRho) <= 1e-10*rho && math.Abs(dT) <= 1e-10*T {
+			return rho, T, nil
+		}
 		if rho < r3RhoMin || rho > r3RhoMax || T < 500 || T > 1200 {
 			break
 		}

@@ -350,3 +350,40 @@ func BenchmarkRegion3PT(b *testing.B) {
 		b.Fatal("NaN")
 	}
 }
+
+// BenchmarkRegion3PH: T and rho from (p,h) in region 3 (SR3-03 start, 2-D
+// Newton on the forward equation).
+func BenchmarkRegion3PH(b *testing.B) {
+	pts := [][2]float64{{25e6, 2276.16995622e3}, {50e6, 2000e3}, {30e6, 2328.42342377e3}, {22.6e6, 2100e3}}
+	b.ReportAllocs()
+	var sink float64
+	for i := 0; b.Loop(); i++ {
+		pt := pts[i&3]
+		_, T, err := region3PH(pt[0], pt[1])
+		if err != nil {
+			b.Fatal(err)
+		}
+		sink += T
+	}
+	if math.IsNaN(sink) {
+		b.Fatal("NaN")
+	}
+}
+
+// BenchmarkRegion3PS: T and rho from (p,s) in region 3.
+func BenchmarkRegion3PS(b *testing.B) {
+	pts := [][2]float64{{25e6, 4.68515141681e3}, {50e6, 4.2e3}, {30e6, 4.73527712266e3}, {22.6e6, 4.5e3}}
+	b.ReportAllocs()
+	var sink float64
+	for i := 0; b.Loop(); i++ {
+		pt := pts[i&3]
+		_, T, err := region3PS(pt[0], pt[1])
+		if err != nil {
+			b.Fatal(err)
+		}
+		sink += T
+	}
+	if math.IsNaN(sink) {
+		b.Fatal("NaN")
+	}
+}
