@@ -46,15 +46,15 @@ func h3asat(s float64) float64 {
 	return 1700e3 * h3asPoly.sum(sg-1.09, sg+0.366e-4)
 }
 
-// h2absat is h”2ab(s), the saturated-vapour enthalpy (J/kg) for
-// 5.85 kJ/(kg K) <= s <= s”(273.15 K), SR4-04(2014) Eq. 5:
+// h2absat is h"2ab(s), the saturated-vapour enthalpy (J/kg) for
+// 5.85 kJ/(kg K) <= s <= s"(273.15 K), SR4-04(2014) Eq. 5:
 // ln η = Σ n (1/σ1-0.513)^I (σ2-0.524)^J, σ1 = s/5.21, σ2 = s/9.2
 // kJ/(kg K), h* = 2800 kJ/kg.
 func h2absat(s float64) float64 {
 	return 2800e3 * math.Exp(h2absPoly.sum(5.21e3/s-0.513, s/9.2e3-0.524))
 }
 
-// h2c3bsat is h”2c3b(s), the saturated-vapour enthalpy (J/kg) for
+// h2c3bsat is h"2c3b(s), the saturated-vapour enthalpy (J/kg) for
 // s_c <= s <= 5.85 kJ/(kg K), SR4-04(2014) Eq. 6:
 // η = [Σ n (σ-1.02)^I (σ-0.726)^J]^4, σ = s/5.9 kJ/(kg K), h* = 2800 kJ/kg.
 func h2c3bsat(s float64) float64 {
@@ -82,7 +82,7 @@ func tb23hs(h, s float64) float64 {
 	return 900 * tb23hsPoly.sum(h/3000e3-0.727, s/5.3e3-0.864)
 }
 
-// tsaths is Tsat(h,s) (K) in region 4 for s >= s”(623.15 K),
+// tsaths is Tsat(h,s) (K) in region 4 for s >= s"(623.15 K),
 // SR4-04(2014) Eq. 9: θ = Σ n (η-0.119)^I (σ-1.07)^J, η = h/2800 kJ/kg,
 // σ = s/9.2 kJ/(kg K), T* = 550 K.
 func tsaths(h, s float64) float64 {

@@ -130,7 +130,7 @@ var h3asTerms = []xterm{
 	{32, 6, 0.631052532240980},
 }
 
-// h2absTerms is IAPWS SR4-04(2014) Eq. 5: saturated-vapour boundary h”2ab(s), coefficients I_i, J_i, n_i.
+// h2absTerms is IAPWS SR4-04(2014) Eq. 5: saturated-vapour boundary h"2ab(s), coefficients I_i, J_i, n_i.
 var h2absTerms = []xterm{
 	{1, 8, -0.524581170928788e3},
 	{1, 24, -0.926947218142218e7},
@@ -164,7 +164,7 @@ var h2absTerms = []xterm{
 	{36, 28, -0.710971318427851e39},
 }
 
-// h2c3bsTerms is IAPWS SR4-04(2014) Eq. 6: saturated-vapour boundary h”2c3b(s), coefficients I_i, J_i, n_i.
+// h2c3bsTerms is IAPWS SR4-04(2014) Eq. 6: saturated-vapour boundary h"2c3b(s), coefficients I_i, J_i, n_i.
 var h2c3bsTerms = []xterm{
 	{0, 0, 0.104351280732769e1},
 	{0, 3, -0.227807912708513e1},

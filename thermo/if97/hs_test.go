@@ -40,7 +40,7 @@ func TestSR404Verification(t *testing.T) {
 }
 
 // TestSR404Boundaries checks the boundary equations h'1(s), h'3a(s),
-// h”2ab(s), h”2c3b(s), hB13(s) and TB23(h,s) against the check values of
+// h"2ab(s), h"2c3b(s), hB13(s) and TB23(h,s) against the check values of
 // IAPWS SR4-04(2014) (its check tables for Eqs. 3-8, 10 significant digits),
 // as quoted in the python3-iapws 1.5.2 docstrings of _h1_s, _h3a_s,
 // _h2ab_s, _h2c3b_s, _h13_s and _t_hs.
@@ -139,10 +139,10 @@ func TestSR303SR404Consistency(t *testing.T) {
 
 // TestSR404BoundaryConsistency: the SR4-04(2014) boundary equations follow
 // the boundaries they approximate, computed from the basic equations, along
-// the whole boundary: h'1(s), h”2ab(s), h”2c3b(s) along the saturation
-// line of regions 1/2 (273.16-623.15 K) and h'3a(s), h”2c3b(s) along it in
+// the whole boundary: h'1(s), h"2ab(s), h"2c3b(s) along the saturation
+// line of regions 1/2 (273.16-623.15 K) and h'3a(s), h"2c3b(s) along it in
 // region 3 (to Tc - 0.01 K); hB13(s) on T = 623.15 K; TB23(h,s) on the B23
-// line; Tsat(h,s) for wet states with s >= s”(623.15 K). Bounds are the
+// line; Tsat(h,s) for wet states with s >= s"(623.15 K). Bounds are the
 // measured maxima rounded up (3.4, 3.7, 1.2, 7.3, 17.9 J/kg; 5.0 mK;
 // 0.85 mK), no published number used: they catch a mistyped coefficient
 // anywhere along a boundary, which the check values alone might miss.
