@@ -82,7 +82,18 @@ func checkTag(k, v string) error {
 	return nil
 }
 
-var tagEscaper = strings.NewReplacer(",", `\,`, "=", `\=`, " ", `\ `)
+// appendEscaped appends a tag value with ',', '=' and ' ' escaped.
+func appendEscaped(dst []byte, v string) []byte {
+	for i := 0; i < len(v); i++ {
+		switch c := v[i]; c {
+		case ',', '=', ' ':
+			dst = append(dst, '\\', c)
+		default:
+			dst = append(dst, c)
+		}
+	}
+	return dst
+}
 
 type tag struct{ k, v string }
 
@@ -125,17 +136,31 @@ func appendLine(dst []byte, p point) ([]byte, error) {
 		dst = append(dst, ',')
 		dst = append(dst, t.k...)
 		dst = append(dst, '=')
-		dst = append(dst, tagEscaper.Replace(t.v)...)
+		dst = appendEscaped(dst, t.v)
 	}
-	seen := make(map[string]bool, len(p.fields))
+	var seen map[string]bool
+	if len(p.fields) > 16 {
+		seen = make(map[string]bool, len(p.fields))
+	}
 	for i, f := range p.fields {
 		if !validName(f.k) {
 			return dst[:start], fmt.Errorf("%w: field key %q of %s is not a name", sinks.ErrInvalid, f.k, p.meas)
 		}
-		if seen[f.k] {
+		dup := false
+		if seen != nil {
+			dup = seen[f.k]
+			seen[f.k] = true
+		} else {
+			for _, g := range p.fields[:i] {
+				if g.k == f.k {
+					dup = true
+					break
+				}
+			}
+		}
+		if dup {
 			return dst[:start], fmt.Errorf("%w: field key %q appears twice in %s", sinks.ErrInvalid, f.k, p.meas)
 		}
-		seen[f.k] = true
 		if i == 0 {
 			dst = append(dst, ' ')
 		} else {
@@ -285,7 +310,7 @@ func encodeRecord(dst []byte, prefix string, r compute.Record) ([]byte, int, err
 	base := []tag{{"kind", r.MachineKind}, {"machine", r.Machine}, {"site", r.Site}}
 	p := point{meas: prefix + "_" + MeasMachine, ms: ms,
 		tags:   []tag{{"kind", r.MachineKind}, {"machine", r.Machine}, {"quality", r.Quality.String()}, {"site", r.Site}},
-		fields: []field{{k: "quality_code", isInt: true, i: qcode(r.Quality)}}}
+		fields: append(make([]field, 0, 1+3*len(r.Figures)), field{k: "quality_code", isInt: true, i: qcode(r.Quality)})}
 	for _, f := range r.Figures {
 		if f.Quality < compute.QualityGood || f.Quality > compute.QualityBad {
 			return dst, 0, fmt.Errorf("%w: record %s: figure %s has unknown quality %d", sinks.ErrInvalid, r.Machine, f.Name, int(f.Quality))
@@ -304,9 +329,12 @@ func encodeRecord(dst []byte, prefix string, r compute.Record) ([]byte, int, err
 	}
 	n := 1
 	addReasons := func(scope string, reasons []string) error {
-		rs := slices.Clone(reasons)
-		slices.Sort(rs)
-		rs = slices.Compact(rs)
+		rs := reasons
+		if len(rs) > 1 {
+			rs = slices.Clone(reasons)
+			slices.Sort(rs)
+			rs = slices.Compact(rs)
+		}
 		for _, reason := range rs {
 			if reason == "" {
 				continue
