@@ -41,10 +41,12 @@ type eos struct {
 	// gaussian terms
 	gN, gD, gT, gEta, gEps, gBeta, gGam []float64
 	gDi                                 []int
+	g0                                  []float64 // exp(-eta eps^2): delta -> 0 limit of the delta factor
 
 	// association terms (Gao et al. 2023)
 	aN, aD, aT, aEta, aEps, aBeta, aGam, aB []float64
 	aDi                                     []int
+	a0                                      []float64 // exp(eta eps^2)
 
 	// non-analytic terms
 	nN, nA, nB, nBeta, nACap, nBCap, nC, nD []float64
@@ -83,6 +85,7 @@ type tauPart struct {
 	at   [maxAssoc]float64
 	att  [maxAssoc]float64
 	hasN bool
+	b2   float64 // lim delta->0 of ar_d: B rho_r, B the second virial coefficient
 }
 
 func toInts(name string, v []float64, max int) ([]int, error) {
@@ -198,11 +201,13 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 			q.maxD = q.pD[k]
 		}
 	}
-	for _, d := range q.gDi {
+	for k, d := range q.gDi {
 		q.maxD = max(q.maxD, d)
+		q.g0 = append(q.g0, math.Exp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
 	}
-	for _, d := range q.aDi {
+	for k, d := range q.aDi {
 		q.maxD = max(q.maxD, d)
+		q.a0 = append(q.a0, math.Exp(q.aEta[k]*q.aEps[k]*q.aEps[k]))
 	}
 	if len(q.uniq) > maxUniqT {
 		return nil, fmt.Errorf("too many distinct tau exponents")
@@ -286,8 +291,12 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 	for j, t := range q.uniq {
 		ut[j] = tauPow(tau, lnTau, t)
 	}
+	b2 := 0.0
 	for k, n := range q.pN {
 		tp.pw[k] = n * ut[q.pTi[k]]
+		if q.pD[k] == 1 {
+			b2 += tp.pw[k]
+		}
 	}
 	for k, n := range q.gN {
 		t, b, g := q.gT[k], q.gBeta[k], q.gGam[k]
@@ -296,6 +305,9 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		gt := t - 2*b*tau*dt
 		tp.gt[k] = gt
 		tp.gtt[k] = gt*gt - t - 2*b*tau*tau
+		if q.gDi[k] == 1 {
+			b2 += tp.gw[k] * q.g0[k]
+		}
 	}
 	for k, n := range q.aN {
 		t, b, g, bb := q.aT[k], q.aBeta[k], q.aGam[k], q.aB[k]
@@ -306,8 +318,12 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		htp := -2 * b * ((2*tau-g)*u - 4*b*tau*dt*dt) / (u * u * u)
 		tp.at[k] = ht
 		tp.att[k] = ht*ht - ht + tau*htp
+		if q.aDi[k] == 1 {
+			b2 += tp.aw[k] * q.a0[k]
+		}
 	}
 	tp.hasN = len(q.nN) > 0
+	tp.b2 = b2 // the non-analytic terms vanish at delta -> 0 except for psi factors below 1e-12
 }
 
 // residual evaluates alpha_r and its scaled derivatives at delta using the

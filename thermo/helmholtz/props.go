@@ -191,7 +191,7 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 		hi, _, _ := f.branchBounds(T, sat)
 		g := guess
 		if g <= 0 || g >= hi {
-			g = min(rhoIG, 0.9*hi)
+			g = min(f.virialGuess(tp, rhoIG), 0.9*hi)
 		}
 		rho, err = f.solveRho(tp, T, p, sideVapour, 0, hi, g)
 		if err != nil {
@@ -227,7 +227,7 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 	default:
 		g := guess
 		if g <= 0 {
-			g = min(rhoIG, 2*f.rhoc)
+			g = min(f.virialGuess(tp, rhoIG), 2*f.rhoc)
 		}
 		rho, err = f.solveRho(tp, T, p, sideSuper, 0, f.rhoMaxBracket(), g)
 		if err != nil {
@@ -264,4 +264,15 @@ func (f *Fluid) branchBounds(T float64, sat *satPoint) (rhoVmax, rhoLmin float64
 		}
 	}
 	return rhoVmax, rhoLmin, nil
+}
+
+// virialGuess solves p = rho R T (1 + B rho) with the second virial
+// coefficient of the equation (tp.b2 = B rho_r): a start for the density
+// iteration of a gas that is far better than the ideal-gas density.
+func (f *Fluid) virialGuess(tp *tauPart, rhoIG float64) float64 {
+	c := 4 * tp.b2 * rhoIG / f.rhor
+	if !(c > -1) || c > 1 {
+		return rhoIG
+	}
+	return 2 * rhoIG / (1 + math.Sqrt(1+c))
 }
