@@ -106,7 +106,8 @@ func t3log(n *[5]float64, p float64) float64 {
 
 // Coefficients n_i of the boundary equations T3xy(p), IAPWS SR5-05(2016)
 // Eq. 1 (polynomials, index = I_i) and Eq. 2 (3ab, 3op, 3wx: I = 0, 1, 2,
-// -1, -2), coefficient table of the boundary equations (its Table 3).
+// -1, -2), coefficient table of the boundary equations (table number not
+// recalled; values verified by the release's boundary check values).
 var (
 	t3cdN = []float64{0.585276966696349e3, 0.278233532206915e1, -0.127283549295878e-1, 0.159090746562729e-3}
 	t3ghN = []float64{-0.249284240900418e5, 0.428143584791546e4, -0.269029173140130e3, 0.751608051114157e1, -0.787105249910383e-1}
@@ -142,7 +143,8 @@ var psat64315 = psat(643.15)
 // v/v* = [Σ n (π-a)^(c I) (θ-b)^(d J)]^e, or for 3n
 // v/v* = exp(Σ n (π-a)^I (θ-b)^J), with π = p/p*, θ = T/T*.
 // Reducing quantities and exponents from the SR5-05(2016) table of v*, p*,
-// T*, a, b, c, d, e (its Table 4).
+// T*, a, b, c, d, e (table number not recalled; values verified by the
+// release's check values of every subregion, TestSR505CheckValues).
 type v3sub struct {
 	vs, ps, ts, a, b float64
 	c, d             float64 // 1, 0.5 or 0.25

@@ -1,5 +1,14 @@
 package if97
 
+// Provenance of the coefficient tables in this file: the values (I_i, J_i,
+// n_i) were extracted mechanically from the tables of the python3-iapws
+// 1.5.2 source (Debian package 1.5.3-1), itself a transcription of the IAPWS
+// releases named at each table, and were not retyped by hand. Equation
+// numbers follow the releases; table numbers, where given, are from memory
+// of the release layout. Each table is verified against the release's own
+// check values and over its whole domain against the forward equation
+// (region3_test.go, hs_test.go, region3_sweep_test.go).
+
 // r3terms are the coefficients and exponents of the region-3 dimensionless
 // Helmholtz free energy, IAPWS R7-97(2012) Table 30: terms i = 2..40
 // (I_i, J_i, n_i) of Eq. 28; the term i = 1, n1 ln(delta), is r3n1.
