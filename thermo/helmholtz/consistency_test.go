@@ -55,6 +55,23 @@ func TestDerivativesFiniteDifference(t *testing.T) {
 	}
 }
 
+// TestSecondVirial: the delta -> 0 limit of ar_d used for the gas-density
+// start (tauPart.b2) equals ar_d at delta = 1e-9 (identity, no source).
+func TestSecondVirial(t *testing.T) {
+	for _, name := range append(pureNames, "air-helmholtz") {
+		f := mustNew(t, name)
+		for _, tau := range []float64{0.4, 1, 1.8} {
+			var tp tauPart
+			f.q.tauPart(tau, &tp)
+			const d = 1e-9
+			r := f.q.residual(&tp, d, false)
+			if relDiff(r.D/d, tp.b2) > 1e-6 {
+				t.Errorf("%s tau=%g: b2 %.10g, ar_d(1e-9) %.10g", name, tau, tp.b2, r.D/d)
+			}
+		}
+	}
+}
+
 // satTemps returns test temperatures from the triple point to within
 // 1e-5 Tc of the critical point.
 func satTemps(f *Fluid) []float64 {

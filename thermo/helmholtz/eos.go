@@ -323,7 +323,18 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		}
 	}
 	tp.hasN = len(q.nN) > 0
-	tp.b2 = b2 // the non-analytic terms vanish at delta -> 0 except for psi factors below 1e-12
+	// Non-analytic terms at delta -> 0: q = 1, theta = 1 - tau + A,
+	// Delta = theta^2 + B, ar_d -> n Delta^b psi.
+	for k, n := range q.nN {
+		tm := tau - 1
+		ex := q.nC[k] + q.nD[k]*tm*tm
+		if ex > 200 {
+			continue
+		}
+		th := -tm + q.nACap[k]
+		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * math.Exp(-ex)
+	}
+	tp.b2 = b2
 }
 
 // residual evaluates alpha_r and its scaled derivatives at delta using the

@@ -18,8 +18,28 @@
 //	                 pseudo-pure dry air (alias "air-lemmon2000")
 //	"water-iapws95"  IAPWS-95, Wagner, Pruss, J. Phys. Chem. Ref. Data 31 (2002) 387-535
 //
+// Aliases: "air" and "air-lemmon2000" (air-helmholtz), "iapws95"
+// (water-iapws95), "carbon-dioxide" (co2), "r-134a" (r134a), "nh3" (ammonia).
+//
 // The coefficients are embedded copies of testdata/reference/eos/*.json
-// (transcribed from CoolProp commit ea27c63; see data/README.md).
+// (transcribed from CoolProp commit ea27c63; see data/README.md), parsed
+// once on first use into flat arrays.
+//
+// Flash supports PT, PH, PS, PX, TX and HS. Below the critical temperature
+// the (p,T) flash decides the phase against the saturation pressure (the
+// ancillary equation when p is clearly away from it, the equation's own
+// Maxwell solution otherwise), solves the density on that branch by
+// safeguarded Newton iteration and checks the root (converged, dp/drho > 0,
+// on the expected side of the saturated density, vapour Z plausible); a
+// failed check is an error wrapping thermo.ErrPhase or
+// thermo.ErrNoConvergence, never a number. Saturation (SatP, SatT, PX, TX,
+// the two-phase part of PH, PS, HS) is the Maxwell construction of the
+// equation itself; it converges to within 1e-5 Tc of the critical point
+// and reports ErrNoConvergence closer than that. Pseudo-pure air has no
+// Maxwell construction: its liquid lies above the bubble line, its vapour
+// below the dew line (CoolProp's ancillaries, about 1 % accurate), and
+// states between them are ErrPhase errors; SatP, SatT, PX and TX return
+// ErrUnsupported for it.
 //
 // Reference states (h and s only; p, cp, cv, w and all differences of h
 // and s are independent of them):
@@ -37,7 +57,9 @@
 //	water-iapws95  IAPWS-95: u = 0, s = 0 for saturated liquid at the triple point
 //
 // Everything is SI and mass based: Pa, K, kg/m3, J/kg, J/(kg K), m/s. A
-// *Fluid is immutable after New and safe for concurrent use.
+// *Fluid is shared by New, immutable apart from two lock-free caches (the
+// phase boundary at the last pressure of a (p,h)/(p,s) flash, the last
+// SatT result) and safe for concurrent use.
 package helmholtz
 
 import (
