@@ -323,18 +323,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		}
 	}
 	tp.hasN = len(q.nN) > 0
-	// Non-analytic terms at delta -> 0: q = 1, theta = 1 - tau + A,
-	// Delta = theta^2 + B, ar_d -> n Delta^b psi.
-	for k, n := range q.nN {
-		tm := tau - 1
-		ex := q.nC[k] + q.nD[k]*tm*tm
-		if ex > 200 {
-			continue
-		}
-		th := -tm + q.nACap[k]
-		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * math.Exp(-ex)
-	}
-	tp.b2 = b2
+	tp.b2 = b2 // without the non-analytic terms: see b2NonAnalytic
 }
 
 // residual evaluates alpha_r and its scaled derivatives at delta using the
@@ -535,4 +524,20 @@ func (q *eos) ideal(tau float64) ideal {
 		o.TT += n * x * x * c * d * e / (den * den)
 	}
 	return o
+}
+
+// b2NonAnalytic is the delta -> 0 limit of ar_d of the non-analytic terms:
+// there q = 1, theta = 1 - tau + A, Delta = theta^2 + B, ar_d -> n Delta^b psi.
+func (q *eos) b2NonAnalytic(tau float64) float64 {
+	b2 := 0.0
+	for k, n := range q.nN {
+		tm := tau - 1
+		ex := q.nC[k] + q.nD[k]*tm*tm
+		if ex > 200 {
+			continue
+		}
+		th := -tm + q.nACap[k]
+		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * math.Exp(-ex)
+	}
+	return b2
 }

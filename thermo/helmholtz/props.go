@@ -270,7 +270,11 @@ func (f *Fluid) branchBounds(T float64, sat *satPoint) (rhoVmax, rhoLmin float64
 // coefficient of the equation (tp.b2 = B rho_r): a start for the density
 // iteration of a gas that is far better than the ideal-gas density.
 func (f *Fluid) virialGuess(tp *tauPart, rhoIG float64) float64 {
-	c := 4 * tp.b2 * rhoIG / f.rhor
+	b2 := tp.b2
+	if tp.hasN {
+		b2 += f.q.b2NonAnalytic(tp.tau)
+	}
+	c := 4 * b2 * rhoIG / f.rhor
 	if !(c > -1) || c > 1 {
 		return rhoIG
 	}
