@@ -384,3 +384,28 @@ func TestAmmoniaGaoVsTillnerRoth(t *testing.T) {
 		}
 	}
 }
+
+// TestWaterTripleAndCritical: two IAPWS-95 numbers NOTES.md section 5 quotes
+// as agreed between the equation, python3-iapws 1.5.2 and an independent
+// evaluator: the Maxwell saturation pressure at 273.16 K, 611.654771 Pa, and
+// h = 37548.435 J/mol at the critical point (647.096 K, 322 kg/m3).
+func TestWaterTripleAndCritical(t *testing.T) {
+	f := mustNew(t, "water-iapws95")
+	p, err := f.SatP(273.16)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(p-611.654771) > 5e-7 {
+		t.Errorf("p_sat(273.16 K) = %.9f Pa, want 611.654771", p)
+	}
+	s, err := f.StateTRho(647.096, 322)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if h := s.H * f.MolarMass(); math.Abs(h-37548.435) > 5e-4 {
+		t.Errorf("h at the critical point = %.4f J/mol, want 37548.435", h)
+	}
+	if math.Abs(s.P-22.064e6) > 1 {
+		t.Errorf("p at the critical point = %.3f Pa, want 22.064 MPa (IAPWS-95 critical pressure)", s.P)
+	}
+}
