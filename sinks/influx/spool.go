@@ -24,6 +24,9 @@ import (
 // replaced atomically by rename) after every acknowledged chunk, so a restart
 // resumes where delivery stopped. A segment is deleted once fully delivered.
 //
+// The file "lock" holds an exclusive advisory lock (flock) while a sink uses
+// the directory, so two sinks never share a spool.
+//
 // A crash can leave the newest segment with a torn last line (no trailing
 // newline); it is cut off on open and counted in torn. A line that does not
 // parse is skipped on replay and counted in corrupt, never sent. When the
@@ -38,6 +41,7 @@ type spool struct {
 	segBytes int64
 	fsync    bool
 
+	lock    *os.File  // exclusive lock on the directory
 	segs    []segment // oldest first
 	active  *os.File  // append handle of segs[len-1], nil when none open
 	readOff int64     // byte offset of the next undelivered line in segs[0]
@@ -66,7 +70,17 @@ func openSpool(dir string, maxBytes, segBytes int64, fsync bool) (*spool, error)
 	if err := os.MkdirAll(dir, 0o750); err != nil {
 		return nil, fmt.Errorf("influx spool: create %s: %w", dir, err)
 	}
-	s := &spool{dir: dir, maxBytes: maxBytes, segBytes: segBytes, fsync: fsync}
+	lock, err := lockDir(dir)
+	if err != nil {
+		return nil, err
+	}
+	s := &spool{dir: dir, maxBytes: maxBytes, segBytes: segBytes, fsync: fsync, lock: lock}
+	ok := false
+	defer func() {
+		if !ok {
+			s.close()
+		}
+	}()
 	ents, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("influx spool: read %s: %w", dir, err)
@@ -118,6 +132,7 @@ func openSpool(dir string, maxBytes, segBytes int64, fsync bool) (*spool, error)
 	}
 	s.bytes.Store(total)
 	s.points.Store(pts)
+	ok = true
 	return s, nil
 }
 
@@ -359,4 +374,10 @@ func (s *spool) savePos() error {
 	return nil
 }
 
-func (s *spool) close() { s.closeActive() }
+func (s *spool) close() {
+	s.closeActive()
+	if s.lock != nil {
+		_ = s.lock.Close()
+		s.lock = nil
+	}
+}

@@ -1,6 +1,7 @@
 package influx
 
 import (
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -96,8 +97,8 @@ func TestSpoolOrderAcrossRestart(t *testing.T) {
 	checkSeq(t, got, 0, 1100)
 	s.close()
 	ents, _ := os.ReadDir(dir)
-	if len(ents) != 0 {
-		t.Errorf("files left after full delivery: %d", len(ents))
+	if len(ents) != 1 || ents[0].Name() != "lock" {
+		t.Errorf("files left after full delivery: %v", ents)
 	}
 }
 
@@ -205,4 +206,21 @@ func FuzzSpoolRead(f *testing.F) {
 			t.Fatalf("points left %d", s.points.Load())
 		}
 	})
+}
+
+func TestSpoolLock(t *testing.T) {
+	dir := t.TempDir()
+	a, err := openSpool(dir, 1<<20, 4096, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := openSpool(dir, 1<<20, 4096, false); !errors.Is(err, ErrSpoolInUse) {
+		t.Errorf("second open: %v, want ErrSpoolInUse", err)
+	}
+	a.close()
+	b, err := openSpool(dir, 1<<20, 4096, false)
+	if err != nil {
+		t.Fatalf("open after close: %v", err)
+	}
+	b.close()
 }
