@@ -285,7 +285,9 @@ func TestFeedPumpSensitivityAndRTDs(t *testing.T) {
 	if f.Quality != compute.QualityBad || !slices.Contains(f.Reasons, ReasonUncertaintyAboveLimit) {
 		t.Errorf("class A RTDs: quality %v %v, want bad, uncertainty_above_limit", f.Quality, f.Reasons)
 	}
-	// Matched sensors (calibrated together, r = 0.95) recover much of it.
+	// Matched sensors (calibrated together, r = 0.95) recover much of it:
+	// GUM eq. 16 scales the temperature part by sqrt(1 - r) ≈ 0.22; the
+	// pressure part stays, hence the bound 0.4.
 	spec.Uncertainty.CorrT = 0.95
 	rc := mustEval(t, spec, in)
 	if !(rc.Figures[IsentropicEfficiency].U95 < 0.4*f.U95) {
