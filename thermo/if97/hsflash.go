@@ -127,6 +127,7 @@ func flashHSWith(h, s float64, ph phFlash) (thermo.State, error) {
 	// the limit itself, so that out-of-range inputs are found in a few steps.
 	lnLo, lnHi := lnMin, lnMax
 	loTried, hiTried := false, false
+	gapTries := 0              // near-critical retries, see below
 	okLo, okHi := false, false // a solved state with F > 0 / F < 0 exists
 	var stLo thermo.State      // the solved state at lnLo, when okLo
 	x := math.Log(hsStartP(h, s))
@@ -153,6 +154,20 @@ func flashHSWith(h, s float64, ph phFlash) (thermo.State, error) {
 				lnLo, loTried = x, true // pressure too low for the (p,h) flash
 			case errors.Is(err, thermo.ErrOutOfRange):
 				lnHi, hiTried = x, true // h unreachable here: valid p lie below
+			case errors.Is(err, thermo.ErrNoConvergence) && math.Abs(p-Pc) < 100 && gapTries < 2:
+				// The saturated phases are not resolved within 1e-4 K of Tc
+				// (sat3TcGap), so the (p,h) flash fails for p within about
+				// 27 Pa below pc. Try pc itself, then pc - 50 Pa, instead.
+				gapTries++
+				next := math.Log(Pc)
+				if gapTries == 2 {
+					next = math.Log(Pc - 50)
+				}
+				if next > lnLo && next < lnHi {
+					last, x = err, next
+					continue
+				}
+				return thermo.State{}, err
 			default:
 				return thermo.State{}, err
 			}

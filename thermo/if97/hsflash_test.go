@@ -185,6 +185,21 @@ func TestFlashHSRegion3Sweep(t *testing.T) {
 	}
 }
 
+// TestFlashHSCriticalPoint: the critical state (rho = rhoc, T = Tc,
+// R7-97(2012) Eqs. 2a-2c, h and s from the region-3 equation) is found from
+// its (h, s), although the (p,h) flash cannot resolve the saturated phases
+// within 1e-4 K of Tc (sat3TcGap): p to 1e-9 relative, T to 1e-9.
+func TestFlashHSCriticalPoint(t *testing.T) {
+	c := region3(Rhoc, Tc)
+	st, ok := checkHS(t, "critical point", c.h, c.s)
+	if !ok {
+		return
+	}
+	if relErr(st.P, Pc) > 1e-9 || relErr(st.T, Tc) > 1e-9 {
+		t.Errorf("critical point: p = %.12g, T = %.12g", st.P, st.T)
+	}
+}
+
 // TestFlashHSRange: (h,s) outside IF97 return a *thermo.RangeError naming
 // h or s (never NaN, never a panic); non-finite inputs ErrNotFinite.
 func TestFlashHSRange(t *testing.T) {

@@ -241,7 +241,8 @@ func TestRegion3Continuity(t *testing.T) {
 // and are the outermost roots (a scan finds no root outside them); at
 // 623.15 K they meet regions 1 and 2 within the R7-97 consistency bounds
 // (0.05 % in v, from memory of the release). Very near Tc and outside the
-// range sat3 returns an error, never a guess.
+// range sat3 returns an error, never a guess; at Tc itself it returns
+// the critical density for both phases.
 func TestSat3(t *testing.T) {
 	for T := T13; T <= Tc-1e-4; {
 		rl, rv, err := sat3(T)
@@ -285,10 +286,15 @@ func TestSat3(t *testing.T) {
 	if d := math.Abs(region2(Ps13, T13).v*rv - 1); d > 5e-4 {
 		t.Errorf("saturated vapour at 623.15 K: region 2 and 3 differ by %.3g in v", d)
 	}
-	for _, T := range []float64{Tc - 5e-5, Tc, 650, 600, math.NaN()} {
+	for _, T := range []float64{Tc - 5e-5, Tc - 2e-9, 650, 600, math.NaN()} {
 		if _, _, err := sat3(T); err == nil {
 			t.Errorf("sat3(%g): no error", T)
 		}
+	}
+	// At the critical temperature itself both phases are the critical
+	// state, rho = rhoc (R7-97(2012) Eq. 2c).
+	if rl, rv, err := sat3(Tc); err != nil || rl != Rhoc || rv != Rhoc {
+		t.Errorf("sat3(Tc) = %g, %g, %v; want rhoc twice", rl, rv, err)
 	}
 	if _, _, err := sat3(650); !errors.Is(err, thermo.ErrOutOfRange) {
 		t.Errorf("sat3(650): %v, want ErrOutOfRange", err)

@@ -18,7 +18,10 @@ import (
 const sat3TcGap = 1e-4 // K
 
 // sat3 returns the saturated-liquid and saturated-vapour densities (kg/m3)
-// at T (K) for 623.15 K <= T <= Tc - sat3TcGap: the two outer roots of
+// at T (K) for 623.15 K <= T <= Tc - sat3TcGap, and rhoc for both at the
+// critical temperature itself (Tc - 1e-9 K <= T <= Tc). In between it
+// returns an error wrapping thermo.ErrNoConvergence (see sat3TcGap). Away
+// from Tc the densities are the two outer roots of
 // p3(rho, T) = psat(T), R7-97(2012) Eq. 28 and Eq. 30 (the IF97 definition
 // of saturated states in region 3; the phase-equilibrium condition is not
 // imposed). Starting values come from the SR5-05(2016) subregion equations
@@ -32,6 +35,12 @@ func sat3(T float64) (rhoL, rhoV float64, err error) {
 		return 0, 0, thermo.Below(fluidName, "T", "K", T, T13, "saturated states lie in region 3 from 623.15 K")
 	}
 	if T > Tc-sat3TcGap {
+		if T <= Tc && T >= Tc-1e-9 {
+			// The critical point itself (to 1e-9 K, where psat differs from
+			// pc by less than 1 mPa): both phases are the critical state,
+			// rho = rhoc (R7-97(2012) Eq. 2c), which region 3 reproduces.
+			return Rhoc, Rhoc, nil
+		}
 		if T > Tc {
 			return 0, 0, thermo.Above(fluidName, "T", "K", T, Tc, "no saturated states above the critical temperature")
 		}
