@@ -46,7 +46,9 @@ import (
 //     with flow exergy differences ψ2 - ψ1 = h2 - h1 - T0 (s2 - s1) (Kotas,
 //     The Exergy Method of Thermal Plant Analysis, ch. 3). The exergy of
 //     heat rejected above T0 is counted as lost.
-//   - Power ṁ w (W). PumpHead (pumps) (p2 - p1)/(ρ̄ g_n), ρ̄ = 2/(v1 + v2),
+//   - Power ṁ w (W): the power exchanged with the fluid, i.e. the shaft
+//     power plus (turbine) or minus (driven machine) Spec.MechanicalLoss;
+//     from a generator power P_el it is P_el/eta_gen + loss. PumpHead (pumps) (p2 - p1)/(ρ̄ g_n), ρ̄ = 2/(v1 + v2),
 //     the pressure part of the total head of ISO 9906 (equal inlet and
 //     outlet velocities and heights assumed).
 //   - PowerMismatch (ṁ w - W_fluid)/W_fluid when a measured power exists

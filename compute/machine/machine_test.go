@@ -430,3 +430,30 @@ func TestParseKind(t *testing.T) {
 func contains(s, sub string) bool { return strings.Contains(s, sub) }
 
 func timeZero() time.Time { return time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC) }
+
+// Turbine outlet by energy balance on generator power: fluid power =
+// P_el/eta_gen + mechanical loss, h2 = h1 - (that + Q)/ṁ (steady-flow energy
+// balance; constant-cp gas so T2 follows in closed form).
+func TestTurbineGeneratorEnergyBalance(t *testing.T) {
+	g := airConst
+	const m, Pel, etaG, loss, Q = 10.0, 3.9e6, 0.975, 50e3, 20e3
+	const p1, T1, p2 = 1e6, 1200.0, 1e5
+	r := mustEval(t, &Spec{Kind: Turbine, Fluid: g, Inlet: ByPT, Outlet: ByEnergyBalance, Power: ElectricalPower,
+		DriveEfficiency: etaG, MechanicalLoss: loss}, &Inputs{P1: p1, T1: T1, P2: p2, MassFlow: m, ElectricalPower: Pel, HeatFlow: Q})
+	wf := Pel/etaG + loss
+	T2 := T1 - (wf+Q)/m/g.a
+	if !relNear(r.Outlet.T, T2, 1e-10) {
+		t.Errorf("T2 = %v, want %v", r.Outlet.T, T2)
+	}
+	if !relNear(val(r, Power), wf, 1e-10) || !relNear(val(r, SpecificWork), wf/m, 1e-10) {
+		t.Errorf("power %v, w %v; want %v, %v", val(r, Power), val(r, SpecificWork), wf, wf/m)
+	}
+	k := g.a / (g.a - g.R)
+	ws := g.a * T1 * (1 - math.Pow(p2/p1, (k-1)/k))
+	if !relNear(val(r, IsentropicEfficiency), wf/m/ws, 1e-9) {
+		t.Errorf("eta_s %v, want %v", val(r, IsentropicEfficiency), wf/m/ws)
+	}
+	if r.Figures[PowerMismatch].Defined {
+		t.Errorf("power mismatch defined although the power fixed the outlet")
+	}
+}
