@@ -2,6 +2,7 @@ package machine
 
 import (
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 
@@ -73,6 +74,48 @@ func TestU95LimitMarksMethodUnusable(t *testing.T) {
 	for _, cf := range rec.Figures {
 		if cf.Name == "isentropic_efficiency" && !math.IsNaN(cf.Value) {
 			t.Errorf("unusable efficiency reached the record as %v", cf.Value)
+		}
+	}
+}
+
+// The first-order propagation against a Monte Carlo propagation of the same
+// input distributions (JCGM 101:2008, GUM Supplement 1): for the steam
+// turbine of the calc example with normal input errors the two standard
+// uncertainties of eta_s and Ṡgen agree within 5 % (the Monte Carlo
+// standard error with 4000 draws is about 1.1 %; the model is close to
+// linear over ±3u).
+func TestPropagationAgainstMonteCarlo(t *testing.T) {
+	spec := &Spec{Kind: Turbine, Fluid: water, Inlet: ByPT, Outlet: ByPT,
+		Uncertainty: Uncertainty{T1: Std{Abs: 1}, T2: Std{Abs: 1}, P1: Std{Rel: 0.002}, P2: Std{Rel: 0.002}, MassFlow: Std{Rel: 0.01}, CorrT: 0.3}}
+	in := Inputs{P1: 16e6, T1: 811.15, P2: 4e6, T2: 611.15, MassFlow: 250}
+	r := mustEval(t, spec, &in)
+	rng := rand.New(rand.NewPCG(1, 2))
+	plain := &Spec{Kind: Turbine, Fluid: water, Inlet: ByPT, Outlet: ByPT}
+	const n = 4000
+	var se, ss, se2, ss2 float64
+	for range n {
+		z1, z2 := rng.NormFloat64(), rng.NormFloat64()
+		e1 := z1
+		e2 := 0.3*z1 + math.Sqrt(1-0.09)*z2 // correlation 0.3 between the temperature errors
+		d := in
+		d.T1 += e1
+		d.T2 += e2
+		d.P1 *= 1 + 0.002*rng.NormFloat64()
+		d.P2 *= 1 + 0.002*rng.NormFloat64()
+		d.MassFlow *= 1 + 0.01*rng.NormFloat64()
+		x := mustEval(t, plain, &d)
+		e, s := val(x, IsentropicEfficiency), val(x, EntropyGenerationRate)
+		se, se2, ss, ss2 = se+e, se2+e*e, ss+s, ss2+s*s
+	}
+	sd := func(s, s2 float64) float64 { return math.Sqrt((s2 - s*s/n) / (n - 1)) }
+	for _, c := range []struct {
+		id FigureID
+		mc float64
+	}{{IsentropicEfficiency, sd(se, se2)}, {EntropyGenerationRate, sd(ss, ss2)}} {
+		u := r.Figures[c.id].U95 / uncert.K95
+		t.Logf("%v: first-order u %.5g, Monte Carlo %.5g", c.id, u, c.mc)
+		if !relNear(u, c.mc, 0.05) {
+			t.Errorf("%v: first-order u = %.5g, Monte Carlo %.5g", c.id, u, c.mc)
 		}
 	}
 }
