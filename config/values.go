@@ -149,3 +149,28 @@ func (s Secret) String() string {
 
 // LogValue keeps the secret out of slog output.
 func (s Secret) LogValue() string { return s.String() }
+
+// Value is a physical value written with a unit whose kind is only known
+// after the whole file is read (e.g. a running-condition limit whose kind
+// follows its signal). It keeps its position for error messages.
+type Value struct {
+	Text      string
+	Line, Col int
+}
+
+// UnmarshalYAML implements yaml.Unmarshaler.
+func (v *Value) UnmarshalYAML(n *yaml.Node) error {
+	if n.Kind != yaml.ScalarNode {
+		return nodeProblem(n, "expected a value with a unit, e.g. 10kg/s", "")
+	}
+	v.Text, v.Line, v.Col = strings.TrimSpace(n.Value), n.Line, n.Column
+	return nil
+}
+
+// IsSet reports whether the value was given.
+func (v Value) IsSet() bool { return v.Text != "" }
+
+// SI parses the value as kind k.
+func (v Value) SI(k units.Kind) (float64, error) {
+	return units.Parse(v.Text, k)
+}

@@ -18,7 +18,7 @@ type design struct {
 	composition       map[string]float64
 	p1, T1, p2, flow  float64 // Pa, K, Pa, kg/s at full load
 	eta               float64
-	degrades          bool
+	degrades          float64
 	genEff, mechLossW float64
 	coolFrac          float64
 	motorEff          float64
@@ -32,7 +32,7 @@ type design struct {
 var designs = []design{
 	{
 		id: "hp-turbine", kind: "turbine", fluid: "water",
-		p1: 16e6, T1: 811.15, p2: 4e6, flow: 250, eta: 0.86, degrades: true,
+		p1: 16e6, T1: 811.15, p2: 4e6, flow: 250, eta: 0.86, degrades: 0.1,
 		tags: []Tag{
 			{Name: "HP1.PT101", Port: "inlet", Quantity: "p", Unit: "MPa", Noise: 0.01},
 			{Name: "HP1.TT101", Port: "inlet", Quantity: "T", Unit: "degC", Noise: 0.3},
@@ -49,7 +49,7 @@ var designs = []design{
 			{Name: "LP1.TT201", Port: "inlet", Quantity: "T", Unit: "degC", Noise: 0.3},
 			{Name: "LP1.PT202", Port: "outlet", Quantity: "p", Unit: "kPa", Noise: 0.02},
 			{Name: "LP1.FT201", Port: "inlet", Quantity: "flow", Unit: "kg/s", Noise: 0.5},
-			{Name: "LP1.JT201", Port: "generator", Quantity: "generator_power", Unit: "MW", Noise: 0.1},
+			{Name: "LP1.JT201", Port: "generator", Quantity: "power", Unit: "MW", Noise: 0.1},
 		},
 	},
 	{
@@ -61,19 +61,19 @@ var designs = []design{
 			{Name: "FP1.PT302", Port: "outlet", Quantity: "p", Unit: "MPa", Noise: 0.01},
 			{Name: "FP1.TT302", Port: "outlet", Quantity: "T", Unit: "degC", Noise: 0.05},
 			{Name: "FP1.FT301", Port: "inlet", Quantity: "flow", Unit: "t/h", Noise: 2.0},
-			{Name: "FP1.JT301", Port: "shaft", Quantity: "motor_power", Unit: "MW", Noise: 0.02},
+			{Name: "FP1.JT301", Port: "motor", Quantity: "power", Unit: "MW", Noise: 0.02},
 		},
 	},
 	{
 		id: "air-compressor", kind: "compressor", fluid: "air",
-		p1: 99e3, T1: 288.15, p2: 0.8e6, flow: 50, eta: 0.84, degrades: true, motorEff: 0.97,
+		p1: 99e3, T1: 288.15, p2: 0.8e6, flow: 50, eta: 0.84, degrades: 1, motorEff: 0.97,
 		tags: []Tag{
 			{Name: "AC1.PT401", Port: "inlet", Quantity: "p", Unit: "kPa", Noise: 0.05},
 			{Name: "AC1.TT401", Port: "inlet", Quantity: "T", Unit: "degC", Noise: 0.2},
 			{Name: "AC1.PT402", Port: "outlet", Quantity: "p", Unit: "barg", Noise: 0.005},
 			{Name: "AC1.TT402", Port: "outlet", Quantity: "T", Unit: "degC", Noise: 0.3},
 			{Name: "AC1.FT401", Port: "inlet", Quantity: "flow", Unit: "kg/s", Noise: 0.1},
-			{Name: "AC1.JT401", Port: "shaft", Quantity: "motor_power", Unit: "kW", Noise: 20},
+			{Name: "AC1.JT401", Port: "motor", Quantity: "power", Unit: "kW", Noise: 20},
 		},
 	},
 	{
@@ -85,7 +85,7 @@ var designs = []design{
 			{Name: "GC1.PT502", Port: "outlet", Quantity: "p", Unit: "MPa", Noise: 0.005},
 			{Name: "GC1.TT502", Port: "outlet", Quantity: "T", Unit: "degC", Noise: 0.3},
 			{Name: "GC1.FT501", Port: "inlet", Quantity: "flow", Unit: "kg/s", Noise: 0.1},
-			{Name: "GC1.JT501", Port: "shaft", Quantity: "shaft_power", Unit: "kW", Noise: 10},
+			{Name: "GC1.JT501", Port: "shaft", Quantity: "power", Unit: "kW", Noise: 10},
 		},
 	},
 	{
@@ -97,7 +97,7 @@ var designs = []design{
 			{Name: "RC1.PT602", Port: "outlet", Quantity: "p", Unit: "kPa", Noise: 1.0},
 			{Name: "RC1.TT602", Port: "outlet", Quantity: "T", Unit: "degC", Noise: 0.3},
 			{Name: "RC1.FT601", Port: "inlet", Quantity: "flow", Unit: "kg/h", Noise: 20},
-			{Name: "RC1.JT601", Port: "shaft", Quantity: "shaft_power", Unit: "kW", Noise: 1},
+			{Name: "RC1.JT601", Port: "shaft", Quantity: "power", Unit: "kW", Noise: 1},
 		},
 	},
 }

@@ -28,7 +28,7 @@ type Tag struct {
 	Name     string // tag name as published, e.g. "QM.HP1.TT102"
 	Machine  string // machine id, e.g. "hp-turbine"
 	Port     string // inlet, outlet, shaft, generator, ambient
-	Quantity string // p, T, flow, shaft_power, generator_power, rh
+	Quantity string // p, T, flow, power (port shaft, generator or motor)
 	Unit     string // the unit the value is published in (config/units name)
 	Noise    float64
 	// noise is the standard deviation of the measurement noise, in Unit.
@@ -46,8 +46,9 @@ type Options struct {
 	// LoadRamp), and LoadRestoreAfter when it returns. Zero disables.
 	LoadChangeAfter, LoadRestoreAfter, LoadRamp time.Duration
 	// DegradeAfter is when fouling starts on the air compressor and erosion
-	// on the HP turbine; DegradeRate is the loss of isentropic efficiency
-	// per minute, as a fraction (0.01 = one point per minute).
+	// on the HP turbine; DegradeRate is the air compressor's loss of
+	// isentropic efficiency per minute, as a fraction (0.01 = one point per
+	// minute); the HP turbine loses a tenth of that.
 	DegradeAfter time.Duration
 	DegradeRate  float64
 	// StuckSensorAfter makes the gas compressor's discharge thermocouple
@@ -88,7 +89,7 @@ type machine struct {
 	// design point (SI)
 	p1, T1, p2, flow  float64
 	eta0              float64 // isentropic efficiency at full load, new
-	degrades          bool
+	degrades          float64 // share of Options.DegradeRate this machine loses (0: none)
 	genEff, mechLossW float64 // turbine with generator power tag
 	coolFrac          float64 // compressor: share of shaft work removed by oil cooling
 	motorEff          float64 // pump/compressor: power tag is shaft power / this
@@ -203,8 +204,8 @@ func (p *Plant) eta(m *machine, e time.Duration) float64 {
 	// Part-load penalty, quadratic in the load deficit (common practice for
 	// a plausible curve, no source).
 	eta := m.eta0 - 0.05*(1-load)*(1-load)
-	if m.degrades && p.opts.DegradeRate > 0 && e > p.opts.DegradeAfter {
-		eta -= p.opts.DegradeRate * (e - p.opts.DegradeAfter).Minutes()
+	if m.degrades > 0 && p.opts.DegradeRate > 0 && e > p.opts.DegradeAfter {
+		eta -= m.degrades * p.opts.DegradeRate * (e - p.opts.DegradeAfter).Minutes()
 	}
 	return math.Max(eta, 0.3)
 }
@@ -284,17 +285,17 @@ func (p *Plant) machineValues(m *machine, e time.Duration, load float64) (map[st
 		h2 = in.H - eta*(in.H-iso.H)
 		w := flow * (in.H - h2) // shaft power, W
 		if m.genEff > 0 {
-			vals["generator_power@generator"] = m.genEff * (w - m.mechLossW)
+			vals["power@generator"] = m.genEff * (w - m.mechLossW)
 		}
-		vals["shaft_power@shaft"] = w
+		vals["power@shaft"] = w
 	default:
 		wIdeal := iso.H - in.H
 		wShaft := wIdeal / eta // specific shaft work, J/kg
 		q := m.coolFrac * wShaft
 		h2 = in.H + wShaft - q
-		vals["shaft_power@shaft"] = flow * wShaft
+		vals["power@shaft"] = flow * wShaft
 		if m.motorEff > 0 {
-			vals["motor_power@shaft"] = flow * wShaft / m.motorEff
+			vals["power@motor"] = flow * wShaft / m.motorEff
 		}
 	}
 	out, err := m.fluid.Flash(thermo.PH, p2, h2)
