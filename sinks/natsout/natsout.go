@@ -62,9 +62,10 @@ type Config struct {
 	StreamMaxAgeHours int    `yaml:"stream_max_age_hours"` // retention of a created stream (h); default 168
 
 	// ReconnectBufBytes bounds what core publishing keeps while the
-	// connection is down (bytes). Default 8 MiB: a record is about 0.7 kB of
-	// JSON, so this holds about 12 000 records, 40 minutes for 5 machines at
-	// one evaluation per second.
+	// connection is down (bytes). Default 8 MiB: a record with two figures
+	// is about 370 bytes of JSON (measured in TestCoreReconnectBuffer), with
+	// six figures about 0.9 kB, so this holds about 9 000 records, 30 minutes
+	// for 5 machines at one evaluation per second.
 	ReconnectBufBytes int `yaml:"reconnect_buf_bytes"`
 	ReconnectWaitMS   int `yaml:"reconnect_wait_ms"`  // pause between reconnect attempts (ms); default 1000
 	PublishTimeoutMS  int `yaml:"publish_timeout_ms"` // wait for one JetStream acknowledgement (ms); default 5000
@@ -115,7 +116,7 @@ func (c Config) Validate() error {
 		}
 	}
 	if c.ReconnectBufBytes < 64<<10 {
-		return fmt.Errorf("natsout: reconnect_buf_bytes %d: use at least 65536 (a record is about 700 bytes)", c.ReconnectBufBytes)
+		return fmt.Errorf("natsout: reconnect_buf_bytes %d: use at least 65536 (a record is about 0.4 to 1 kB)", c.ReconnectBufBytes)
 	}
 	return nil
 }

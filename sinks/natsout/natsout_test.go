@@ -295,3 +295,75 @@ func TestConfigValidate(t *testing.T) {
 		t.Errorf("default config: %v", err)
 	}
 }
+
+// Core publishing while the server is away fills the reconnect buffer; what
+// does not fit is refused, counted and reported, never lost silently. What
+// fitted is delivered after the reconnect: a JetStream stream created before
+// the outage (and restored from its directory on restart) captures it.
+func TestCoreReconnectBuffer(t *testing.T) {
+	dir := t.TempDir()
+	srv, url := startServer(t, dir, -1)
+	port := srv.Addr().(*net.TCPAddr).Port
+	func() {
+		nc, err := nats.Connect(url)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer nc.Close()
+		js, err := jetstream.New(nc)
+		if err != nil {
+			t.Fatal(err)
+		}
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "CAPTURE", Subjects: []string{"exergywatch.>"}, Storage: jetstream.FileStorage}); err != nil {
+			t.Fatal(err)
+		}
+	}()
+	s, err := New("nats", Config{URL: url, ReconnectBufBytes: 64 << 10, ReconnectWaitMS: 50}, quiet)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close(context.Background())
+	srv.Shutdown()
+	srv.WaitForShutdown()
+	deadline := time.Now().Add(5 * time.Second)
+	for s.nc.IsConnected() && time.Now().Before(deadline) {
+		time.Sleep(10 * time.Millisecond)
+	}
+	ctx := context.Background()
+	var accepted int
+	var lastErr error
+	for k := 0; k < 1000; k++ {
+		if err := s.WriteRecord(ctx, rec(k)); err != nil {
+			lastErr = err
+			continue
+		}
+		accepted++
+	}
+	st := s.Stats()
+	if !errors.Is(lastErr, nats.ErrReconnectBufExceeded) || st.Dropped != uint64(1000-accepted) || accepted == 0 {
+		t.Fatalf("accepted %d, last error %v, stats %+v", accepted, lastErr, st)
+	}
+	if st.BufferedBytes == 0 || st.BufferedBytes > 64<<10+1024 { // the limit is checked before a message is added
+		t.Errorf("buffered %d bytes, want some and at most 64 KiB plus one message", st.BufferedBytes)
+	}
+	t.Logf("%d records fitted in a 64 KiB reconnect buffer (%d bytes)", accepted, st.BufferedBytes)
+	startServer(t, dir, port)
+	deadline = time.Now().Add(10 * time.Second)
+	for !s.nc.IsConnected() && time.Now().Before(deadline) {
+		time.Sleep(10 * time.Millisecond)
+	}
+	fctx, cancel := context.WithTimeout(ctx, 5*time.Second)
+	defer cancel()
+	if err := s.nc.FlushWithContext(fctx); err != nil {
+		t.Fatal(err)
+	}
+	msgs := readStream(t, url, "CAPTURE", accepted)
+	for i, m := range msgs {
+		r, err := sinks.UnmarshalRecord(m.Data())
+		if err != nil || !r.Time.Equal(rec(i).Time) {
+			t.Fatalf("message %d: %v, time %v", i, err, r.Time)
+		}
+	}
+}
