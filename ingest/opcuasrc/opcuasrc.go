@@ -87,6 +87,7 @@ var (
 	// ErrNoEndpoint: the server offers no endpoint with the requested
 	// security policy and mode.
 	ErrNoEndpoint = errors.New("no matching opc ua endpoint")
+	errNoItems    = fmt.Errorf("%w: no items", ErrConfig)
 )
 
 func (c *Config) defaults() error {
@@ -142,7 +143,7 @@ func (c *Config) defaults() error {
 		c.WatchdogInterval = 5 * time.Second
 	}
 	if len(c.Items) == 0 {
-		return fmt.Errorf("%w: no items", ErrConfig)
+		return errNoItems
 	}
 	seen := map[string]bool{}
 	for i := range c.Items {
@@ -358,30 +359,51 @@ func (s *Source) Run(ctx context.Context) error {
 	}
 }
 
+// Connect selects the endpoint, opens a session with the configured
+// security and identity and returns the client. onLost, if not nil, is
+// called once when the connection is lost or closed. Refusals keep the
+// server's StatusCode in the error chain (errors.Is(err,
+// ua.StatusBadUserAccessDenied)).
+func Connect(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey, onLost func()) (*opcua.Client, error) {
+	if err := cfg.defaults(); err != nil && !errors.Is(err, errNoItems) {
+		return nil, err
+	}
+	if cert == nil && cfg.SecurityPolicy != "None" {
+		var err error
+		if cert, key, err = LoadOrMakeCertificate(cfg.CertFile, cfg.KeyFile, cfg.ApplicationURI, true); err != nil {
+			return nil, fmt.Errorf("%w: %v", ErrConfig, err)
+		}
+	}
+	cctx, cancel := context.WithTimeout(ctx, cfg.RequestTimeout)
+	defer cancel()
+	opts, err := ClientOptions(cctx, cfg, cert, key)
+	if err != nil {
+		return nil, err
+	}
+	if onLost != nil {
+		var once sync.Once
+		opts = append(opts, opcua.StateChangedFunc(func(st opcua.ConnState) {
+			if st == opcua.Disconnected || st == opcua.Closed {
+				once.Do(onLost)
+			}
+		}))
+	}
+	c, err := opcua.NewClient(cfg.Endpoint, opts...)
+	if err != nil {
+		return nil, fmt.Errorf("%w: %v", ErrConfig, err)
+	}
+	if err := c.Connect(cctx); err != nil {
+		return nil, fmt.Errorf("connect: %w", err)
+	}
+	return c, nil
+}
+
 // session runs one connection: connect, subscribe, deliver until lost.
 func (s *Source) session(ctx context.Context, lostAt *time.Time) error {
-	cctx, cancel := context.WithTimeout(ctx, s.cfg.RequestTimeout)
-	opts, err := ClientOptions(cctx, s.cfg, s.cert, s.key)
-	cancel()
+	lost := make(chan struct{})
+	c, err := Connect(ctx, s.cfg, s.cert, s.key, func() { close(lost) })
 	if err != nil {
 		return err
-	}
-	lost := make(chan struct{})
-	var lostOnce sync.Once
-	opts = append(opts, opcua.StateChangedFunc(func(st opcua.ConnState) {
-		if st == opcua.Disconnected || st == opcua.Closed {
-			lostOnce.Do(func() { close(lost) })
-		}
-	}))
-	c, err := opcua.NewClient(s.cfg.Endpoint, opts...)
-	if err != nil {
-		return fmt.Errorf("%w: %v", ErrConfig, err)
-	}
-	cctx, cancel = context.WithTimeout(ctx, s.cfg.RequestTimeout)
-	err = c.Connect(cctx)
-	cancel()
-	if err != nil {
-		return fmt.Errorf("connect: %w", err)
 	}
 	// From here a lost state is a lost session; but Close also sets
 	// Closed, so only what happens before our Close counts.
