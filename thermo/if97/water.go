@@ -369,7 +369,7 @@ func val(k kind, region int, p, T float64) float64 {
 	return pr.s
 }
 
-// pick returns h or s of pr.
+// of returns h or s of pr.
 func (k kind) of(pr props) float64 {
 	if k == kindH {
 		return pr.h
@@ -387,7 +387,7 @@ type phsResult struct {
 	l, v   props // region 4
 }
 
-// solveT12 solves h(p,T) = y or s(p,T) = y in region 1, 2 or 5 between
+// solveTreg solves h(p,T) = y or s(p,T) = y in region 1, 2 or 5 between
 // lo and hi, starting from T0.
 func solveTreg(k kind, region int, p, y, lo, hi, T0 float64) (float64, error) {
 	switch {
