@@ -16,7 +16,10 @@ import (
 // density in region 3) on the basic equations, with the backward equations
 // as starting values. On the saturation line (x = 0 or x = 1 exactly) the
 // state carries the derivatives (cp, cv, w) of that saturated phase;
-// inside the two-phase region it carries none.
+// inside the two-phase region it carries none. Saturated and wet states
+// within 1e-4 K of the critical temperature (other than the critical point
+// itself), where the region-3 equation does not separate the two saturated
+// densities, return an error wrapping thermo.ErrNoConvergence.
 type Water struct{}
 
 var (
