@@ -97,8 +97,8 @@ func dpsatdT(T float64) float64 {
 // SatP returns the saturation pressure in Pa at T in K (IAPWS R7-97(2012)
 // Eq. 30), for 273.15 K <= T <= 647.096 K.
 func SatP(T float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"T"}, T); err != nil {
-		return 0, err
+	if T-T != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"T"}, T)
 	}
 	if T < Tmin {
 		return 0, thermo.Below(fluidName, "T", "K", T, Tmin, "IF97 saturation line starts at 273.15 K")
@@ -115,8 +115,8 @@ func SatP(T float64) (float64, error) {
 // SatT returns the saturation temperature in K at p in Pa (IAPWS R7-97(2012)
 // Eq. 31), for psat(273.15 K) = 611.213 Pa <= p <= 22.064 MPa.
 func SatT(p float64) (float64, error) {
-	if err := thermo.CheckFinite(fluidName, []string{"p"}, p); err != nil {
-		return 0, err
+	if p-p != 0 { // NaN or ±Inf
+		return 0, thermo.CheckFinite(fluidName, []string{"p"}, p)
 	}
 	if p < PsatMin {
 		return 0, thermo.Below(fluidName, "p", "Pa", p, PsatMin, "IF97 saturation line starts at psat(273.15 K)")
