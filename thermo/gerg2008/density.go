@@ -19,7 +19,8 @@ const (
 // density solves p(T, D) = p for the gas (vapour-like) root. p is in kPa,
 // T is held in tc; the result is in mol/dm3.
 //
-// Newton's method in ln D starts from the ideal gas D = p/(RT) and is kept
+// Newton's method in ln D starts from the truncated virial equation
+// Z = 1 + B D (or the ideal gas D = p/(RT) if that has no root) and is kept
 // inside a bracket [lo, hi]: points with f = p(D) - p < 0 and dp/dD > 0 raise
 // lo; points with f > 0, or with dp/dD <= 0 (mechanically unstable: the gas
 // root lies at a lower density), lower hi; a step leaving the bracket is
@@ -31,12 +32,16 @@ const (
 // (T below the reducing temperature with the density above the reducing
 // density). A failed check is an error wrapping thermo.ErrPhase.
 //
-// D0 > 0 is a starting value (a nearby root, for warm starts); otherwise the
-// ideal gas is used.
+// D0 > 0 is a starting value (a nearby root, for warm starts).
 func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 	T := tc.T
 	RT := m.R * T
 	D := p / RT
+	if q := 1 + 4*tc.B*D; tc.B != 0 && q > 0 {
+		// Truncated virial equation Z = 1 + B D: a better start than the
+		// ideal gas at moderate pressure; the iteration below does the rest.
+		D = 2 * D / (1 + math.Sqrt(q))
+	}
 	if D0 > 0 && D0 < deltaMax*m.Dr {
 		D = D0
 	}

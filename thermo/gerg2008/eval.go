@@ -6,6 +6,7 @@ import "math"
 // merged residual term; it lives on the caller's stack.
 type tauCache struct {
 	T, tau float64
+	B      float64 // second virial coefficient, dm3/mol (a starting value for the density)
 	nt     [maxTerms]float64
 }
 
@@ -25,6 +26,12 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 		tm := &m.ts.list[k]
 		tc.nt[k] = tm.n * pw[tm.ti]
 	}
+	// B = lim_{delta->0} ar_d / rho_r: the terms with d = 1 at delta = 0.
+	var b float64
+	for _, v := range m.ts.virial {
+		b += tc.nt[v.k] * v.e0
+	}
+	tc.B = b / m.Dr
 }
 
 // resid holds the residual Helmholtz energy and its reduced derivatives:

@@ -32,10 +32,30 @@ type terms struct {
 	usedC  [maxC]bool
 	cList  []int     // the c values in use
 	tvals  []float64 // the distinct tau exponents t
+	// virial lists the terms with d = 1 and their exponential factor at
+	// delta = 0, which give the second virial coefficient.
+	virial []struct {
+		k  int
+		e0 float64
+	}
 }
 
-// indexT fills tvals and the terms' ti.
+// indexT fills tvals and the terms' ti, and virial.
 func (ts *terms) indexT() {
+	for k, tm := range ts.list {
+		if tm.d != 1 {
+			continue
+		}
+		e0 := 1.0
+		if tm.e >= 0 {
+			de := ts.depExp[tm.e]
+			e0 = math.Exp(-de.eta*de.eps*de.eps + de.beta*de.gamma)
+		}
+		ts.virial = append(ts.virial, struct {
+			k  int
+			e0 float64
+		}{k, e0})
+	}
 	seen := map[float64]int{}
 	for k := range ts.list {
 		t := ts.list[k].t
