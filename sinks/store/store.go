@@ -35,6 +35,7 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"math"
 	"os"
 	"path/filepath"
 	"sort"
@@ -447,11 +448,16 @@ func (s *Store) LatestAll() ([]compute.Record, error) {
 }
 
 // Range returns the records of one machine with from <= Time < to, oldest
-// first, at most limit of them (limit <= 0: no limit).
+// first, at most limit of them (limit <= 0: no limit). A zero from means
+// from the start, a zero to means no upper bound.
 func (s *Store) Range(site, machine string, from, to time.Time, limit int) ([]compute.Record, error) {
 	var out []compute.Record
 	if from.Before(time.Unix(0, 0)) {
 		from = time.Unix(0, 0)
+	}
+	end := int64(math.MaxInt64)
+	if !to.IsZero() && to.Before(time.Unix(0, math.MaxInt64)) {
+		end = to.UnixNano()
 	}
 	fk, err := timeKey(from)
 	if err != nil {
@@ -464,7 +470,7 @@ func (s *Store) Range(site, machine string, from, to time.Time, limit int) ([]co
 		}
 		c := mb.Cursor()
 		for k, v := c.Seek(fk); k != nil && (limit <= 0 || len(out) < limit); k, v = c.Next() {
-			if int64(binary.BigEndian.Uint64(k)) >= to.UnixNano() {
+			if int64(binary.BigEndian.Uint64(k)) >= end {
 				break
 			}
 			r, err := decodeRecord(v)

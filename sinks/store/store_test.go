@@ -89,6 +89,9 @@ func TestWriteReadBack(t *testing.T) {
 	if !reflect.DeepEqual(got, want[10:20]) {
 		t.Errorf("range: got %d records, want 10\n got[0] %+v\nwant[0] %+v", len(got), got[0], want[10])
 	}
+	if got, _ := s.Range("north", "c1", time.Time{}, time.Time{}, 0); len(got) != 50 {
+		t.Errorf("unbounded range: %d records, want 50", len(got))
+	}
 	if got, _ := s.Range("north", "c1", time.Time{}, t0.Add(time.Hour*24), 7); len(got) != 7 || !reflect.DeepEqual(got[0], want[0]) {
 		t.Errorf("limited range: %d records", len(got))
 	}
