@@ -24,7 +24,7 @@ var (
 )
 
 // h3ab is the enthalpy (J/kg) on the boundary between subregions 3a and 3b
-// at p (Pa), IAPWS SR3-03(2014) Eq. 1 with the coefficients of its Table 2:
+// at p (Pa), IAPWS SR3-03(2014) Eq. 1 with its coefficients n1..n4:
 // h/(1 kJ/kg) = n1 + n2 π + n3 π² + n4 π³, π = p/(1 MPa).
 func h3ab(p float64) float64 {
 	pi := p * 1e-6
