@@ -35,15 +35,17 @@ func rec(k int) compute.Record {
 // ends): a stand-in for a database that hangs. It records what it got.
 type gate struct {
 	open    chan struct{}
+	entered chan struct{} // receives once per write that started waiting
 	mu      sync.Mutex
 	got     []time.Time
 	ctxErrs int
 	closed  bool
 }
 
-func newGate() *gate { return &gate{open: make(chan struct{})} }
+func newGate() *gate { return &gate{open: make(chan struct{}), entered: make(chan struct{}, 1000)} }
 
 func (g *gate) WriteRecord(ctx context.Context, r compute.Record) error {
+	g.entered <- struct{}{}
 	select {
 	case <-g.open:
 	case <-ctx.Done():
@@ -164,6 +166,7 @@ func TestMultiCloseTimeout(t *testing.T) {
 	if err := m.WriteEvent(context.Background(), compute.Event{Time: t0, Machine: "p1", Rule: "r"}); err != nil {
 		t.Fatal(err)
 	}
+	<-slow.entered // the first item is in flight
 	ctx, cancel := context.WithTimeout(context.Background(), 200*time.Millisecond)
 	defer cancel()
 	start := time.Now()
