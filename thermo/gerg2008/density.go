@@ -35,17 +35,17 @@ const (
 // D0 > 0 is a starting value (a nearby root, for warm starts).
 func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 	T := tc.T
-	RT := m.R * T
+	RT := m.rgas * T
 	D := p / RT
 	if q := 1 + 4*tc.B*D; tc.B != 0 && q > 0 {
 		// Truncated virial equation Z = 1 + B D: a better start than the
 		// ideal gas at moderate pressure; the iteration below does the rest.
 		D = 2 * D / (1 + math.Sqrt(q))
 	}
-	if D0 > 0 && D0 < deltaMax*m.Dr {
+	if D0 > 0 && D0 < deltaMax*m.dr {
 		D = D0
 	}
-	lo, hi := 0.0, deltaMax*m.Dr
+	lo, hi := 0.0, deltaMax*m.dr
 	if D >= hi { // far above any gas density (e.g. 70 MPa at 60 K): start inside the bracket
 		D = 0.5 * hi
 	}
@@ -100,7 +100,7 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa has Z = %g against the ideal gas, outside [%g, %g]: %w",
 			m.name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
 	}
-	delta := D / m.Dr
+	delta := D / m.dr
 	if delta > scanFromDelt && T <= m.tLoop {
 		for k := 1; k < scanPoints; k++ {
 			if _, d := m.pressure(tc, D*float64(k)/scanPoints); !(d > 0) {
@@ -122,7 +122,7 @@ func (m *Mixture) hasLoop(T float64) bool {
 	var tc tauCache
 	m.setTau(&tc, T)
 	for k := 1; float64(k)*0.05 <= deltaMax; k++ {
-		if _, d := m.pressure(&tc, m.Dr*float64(k)*0.05); !(d > 0) {
+		if _, d := m.pressure(&tc, m.dr*float64(k)*0.05); !(d > 0) {
 			return true
 		}
 	}

@@ -168,7 +168,7 @@ func NewDetail(composition map[string]float64) (*Mixture, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Mixture{x: x, R: d.R, name: NameDetail, tMin: TMinDetail, tMax: TMaxDetail, pMax: PMaxDetail,
+	m := &Mixture{x: x, rgas: d.R, name: NameDetail, tMin: TMinDetail, tMax: TMaxDetail, pMax: PMaxDetail,
 		rangeCtx: "AGA8-DC92 DETAIL wide range 143-676 K, p <= 280 MPa", detail: true}
 	// Mixing rules (NOTES.md section 3).
 	var k5, u5, G, Q, F float64
@@ -232,7 +232,7 @@ func NewDetail(composition map[string]float64) (*Mixture, error) {
 	if !(K3 > 0) || !(U > 0) || math.IsInf(K3, 0) || math.IsInf(U, 0) {
 		return nil, fmt.Errorf("%w: DETAIL mixing rules give K^3 = %g, U = %g", ErrComposition, K3, U)
 	}
-	m.Tr, m.Dr = 1, 1/K3
+	m.tr, m.dr = 1, 1/K3
 	m.dLiq = 1 / vpc
 	// Merge the terms as buildTerms does: key (d, c, t).
 	type key struct {

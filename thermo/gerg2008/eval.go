@@ -12,7 +12,7 @@ type tauCache struct {
 
 func (m *Mixture) setTau(tc *tauCache, T float64) {
 	tc.T = T
-	tc.tau = m.Tr / T
+	tc.tau = m.tr / T
 	lt := math.Log(tc.tau)
 	var pw [maxTerms]float64
 	for i, t := range m.ts.tvals {
@@ -31,7 +31,7 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 	for _, v := range m.ts.virial {
 		b += tc.nt[v.k] * v.e0
 	}
-	tc.B = b / m.Dr
+	tc.B = b / m.dr
 }
 
 // resid holds the residual Helmholtz energy and its reduced derivatives:
@@ -119,7 +119,7 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 // and molar density D in mol/dm3. It evaluates only the delta derivatives.
 func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
 	ts := m.ts
-	delta := D / m.Dr
+	delta := D / m.dr
 	var dp [maxDelta + maxC]float64
 	dp[0] = 1
 	for k := 1; k < len(dp); k++ {
@@ -165,7 +165,7 @@ func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
 		rd += F * g
 		rdd += F * (g*g - d - e2[e])
 	}
-	RT := m.R * tc.T
+	RT := m.rgas * tc.T
 	return D * RT * (1 + rd), RT * (1 + 2*rd + rdd)
 }
 
@@ -236,9 +236,9 @@ type Properties struct {
 // NIST's PropertiesGERG (GERG2008.cpp) in its units, then converts to SI.
 func (m *Mixture) props(tc *tauCache, D float64) Properties {
 	T := tc.T
-	r := m.residual(tc, D/m.Dr)
+	r := m.residual(tc, D/m.dr)
 	a0, a0t, a0tt := m.ideal(T, D)
-	R := m.R
+	R := m.rgas
 	RT := R * T
 	Z := 1 + r.d
 	P := D * RT * Z                             // kPa

@@ -94,8 +94,8 @@ func (m *Mixture) PropertiesTD(T, D float64) (Properties, error) {
 		return Properties{}, thermo.Above(m.name, "T", "K", T, m.tMax, m.rangeCtx)
 	case !(D > 0):
 		return Properties{}, thermo.Below(m.name, "rho", "mol/m3", D, 0, "")
-	case D > deltaMax*m.Dr*1000:
-		return Properties{}, thermo.Above(m.name, "rho", "mol/m3", D, deltaMax*m.Dr*1000, "6 times the reducing density")
+	case D > deltaMax*m.dr*1000:
+		return Properties{}, thermo.Above(m.name, "rho", "mol/m3", D, deltaMax*m.dr*1000, "6 times the reducing density")
 	}
 	var tc tauCache
 	m.setTau(&tc, T)
@@ -163,21 +163,22 @@ func (m *Mixture) state(pr *Properties) (thermo.State, error) {
 // mixing term included). Phase is always thermo.PhaseGas: the model does not
 // locate the mixture's critical point.
 //
-// Range: 60-700 K and 0 < p <= 70 MPa (GERG-2008 extended range); outside
-// it, a *thermo.RangeError. PX, TX and HS return thermo.ErrUnsupported.
+// Range: 60-700 K and 0 < p <= 70 MPa (GERG-2008 extended range; NewDetail:
+// 143-676 K, p <= 280 MPa); outside it, a *thermo.RangeError. PX, TX and HS return thermo.ErrUnsupported.
 //
 // Phase checks (errors wrap thermo.ErrPhase): the density is the gas root of
 // p(T, rho) found from the ideal-gas estimate; it must be mechanically stable
 // (dp/drho > 0), have 0.05 <= Z <= 20, have dp/drho > 0 at 7 densities between
 // 0 and the root (no van der Waals loop below it, so it is not a liquid root),
 // and must not be liquid-like (T below the reducing temperature T_r(x) with
-// rho above rho_r(x)); a pressure above the gas branch of the isotherm has no
+// rho above rho_r(x); for NewDetail the Kay's-rule pseudo-critical T and
+// density from the GERG-2008 critical data); a pressure above the gas branch of the isotherm has no
 // gas root. These checks do not test material stability: a mechanically
 // stable gas between the dew point and the spinodal (supersaturated, inside
 // the phase envelope) passes them. A Mixture made with WithStabilityCheck
 // also runs the tangent-plane stability test (Stable) on every state it
-// returns and rejects such states; it costs about 0.5-1 ms per call instead
-// of about 10 µs.
+// returns and rejects such states; it costs about 1-3 ms of CPU per call
+// instead of about 10 µs (11-component gas).
 //
 // The (p, h) and (p, s) flashes run Newton's method on T with dh/dT = cp
 // (ds/dT = cp/T) inside a bracket, to |dT|/T < 1e-11.

@@ -372,7 +372,7 @@ func TestConsistency(t *testing.T) {
 				{"h = u + p/D", pr.H, pr.U + pr.P/D, 1e-12 * math.Max(1, math.Abs(pr.U)) / math.Max(math.Abs(pr.H), 1)},
 				{"g = h - T s", pr.G, pr.H - T*pr.S, 1e-11 * math.Max(math.Abs(T*pr.S), 1) / math.Max(math.Abs(pr.G), 1)},
 				{"Joule-Thomson", pr.JT, jt, 1e-5},
-				{"Z", pr.Z, pr.P / (D * m.R * T), 1e-14},
+				{"Z", pr.Z, pr.P / (D * m.rgas * T), 1e-14},
 			}
 			for _, c := range checks {
 				if d := relDiff(c.got, c.want); d > c.tol {

