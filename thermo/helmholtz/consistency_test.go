@@ -316,7 +316,7 @@ func TestPhaseAndSpuriousRoots(t *testing.T) {
 	f := mustNew(t, "water-iapws95")
 	var tp tauPart
 	f.q.tauPart(f.tr/300, &tp)
-	if _, err := f.density(&tp, 300, 1e6, thermo.PhaseVapour, nil, 0); !errors.Is(err, thermo.ErrPhase) && !errors.Is(err, thermo.ErrNoConvergence) {
+	if _, _, err := f.density(&tp, 300, 1e6, thermo.PhaseVapour, nil, 0); !errors.Is(err, thermo.ErrPhase) && !errors.Is(err, thermo.ErrNoConvergence) {
 		t.Errorf("vapour root of water at 300 K, 1 MPa: err = %v, want ErrPhase or ErrNoConvergence", err)
 	}
 }

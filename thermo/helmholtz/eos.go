@@ -3,6 +3,7 @@ package helmholtz
 import (
 	"fmt"
 	"math"
+	"sort"
 )
 
 // Fixed capacities of the per-temperature work arrays. They live on the
@@ -13,7 +14,7 @@ const (
 	maxGauss = 16 // Gaussian residual terms
 	maxAssoc = 4  // Gao et al. (2023) association terms
 	maxNA    = 4  // non-analytic terms (IAPWS-95, Span-Wagner)
-	maxDexp  = 16 // largest integer delta exponent d in power terms
+	maxDexp  = 31 // largest integer delta exponent d in power terms (2^k - 1: also a bit mask)
 	maxLexp  = 8  // largest integer l in exp(-delta^l)
 	maxUniqT = 64 // distinct tau exponents of the power terms
 )
@@ -37,6 +38,8 @@ type eos struct {
 	uniq []float64
 	lUse [maxLexp + 1]bool
 	maxD int
+	pDf  []float64   // float64(pD)
+	grp  []termGroup // power terms grouped by l (terms are sorted by l)
 
 	// gaussian terms
 	gN, gD, gT, gEta, gEps, gBeta, gGam []float64
@@ -58,6 +61,11 @@ type eos struct {
 	peN, peT []float64 // sum n ln(1 - exp(-theta tau))
 	pgN, pgT []float64 // sum n ln(c + d exp(theta tau))
 	pgC, pgD []float64
+}
+
+// termGroup is a run of power terms sharing the exponent l of exp(-delta^l).
+type termGroup struct {
+	l, start, end int
 }
 
 // resid is the residual Helmholtz energy and its derivatives, scaled:
@@ -179,6 +187,27 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 		default:
 			return nil, fmt.Errorf("unknown residual term type %q", t.Type)
 		}
+	}
+	// Sort the power terms by l (stable) so that residual runs over groups
+	// without a branch per term; the sum is the same up to rounding.
+	idx := make([]int, len(q.pN))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return q.pL[idx[a]] < q.pL[idx[b]] })
+	pN, pD, pT, pL := q.pN, q.pD, q.pT, q.pL
+	q.pN, q.pD, q.pT, q.pL = make([]float64, len(idx)), make([]int, len(idx)), make([]float64, len(idx)), make([]int, len(idx))
+	for i, j := range idx {
+		q.pN[i], q.pD[i], q.pT[i], q.pL[i] = pN[j], pD[j], pT[j], pL[j]
+		q.pDf = append(q.pDf, float64(pD[j]))
+	}
+	for i := 0; i < len(q.pL); {
+		j := i
+		for j < len(q.pL) && q.pL[j] == q.pL[i] {
+			j++
+		}
+		q.grp = append(q.grp, termGroup{l: q.pL[i], start: i, end: j})
+		i = j
 	}
 	if len(q.pN) > maxPower || len(q.gN) > maxGauss || len(q.aN) > maxAssoc || len(q.nN) > maxNA {
 		return nil, fmt.Errorf("too many terms for the fixed work arrays")
@@ -336,39 +365,39 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 	for i := 1; i <= q.maxD; i++ {
 		dp[i] = dp[i-1] * delta
 	}
-	var el, dl [maxLexp + 1]float64 // exp(-delta^l), delta^l
-	el[0] = 1
-	for l := 1; l <= maxLexp; l++ {
-		if q.lUse[l] {
-			var x float64
-			if l <= q.maxD {
-				x = dp[l]
-			} else {
-				x = powi(delta, l)
-			}
-			dl[l] = x
-			el[l] = math.Exp(-x)
+	pw := tp.pw[:len(q.pN)]
+	pD := q.pD[:len(pw)]
+	pDf := q.pDf[:len(pw)]
+	pT := q.pT[:len(pw)]
+	for _, gr := range q.grp {
+		e, lx, llx := 1.0, 0.0, 0.0
+		if gr.l > 0 {
+			x := powi(delta, gr.l) // delta^l
+			e = math.Exp(-x)
+			fl := float64(gr.l)
+			lx, llx = fl*x, fl*fl*x
 		}
-	}
-	for k := range q.pN {
-		d, l := q.pD[k], q.pL[k]
-		F := tp.pw[k] * dp[d] * el[l]
-		g := float64(d)
-		ll := 0.0
-		if l > 0 {
-			fl := float64(l)
-			g -= fl * dl[l]
-			ll = fl * fl * dl[l]
-		}
-		r.A += F
-		Fg := F * g
-		r.D += Fg
-		r.DD += F * (g*(g-1) - ll)
 		if full {
-			t := q.pT[k]
-			r.T += F * t
-			r.TT += F * t * (t - 1)
-			r.DT += Fg * t
+			for k := gr.start; k < gr.end; k++ {
+				F := pw[k] * dp[pD[k]&maxDexp] * e
+				g := pDf[k] - lx
+				Fg := F * g
+				t := pT[k]
+				r.A += F
+				r.D += Fg
+				r.DD += F * (g*(g-1) - llx)
+				r.T += F * t
+				r.TT += F * t * (t - 1)
+				r.DT += Fg * t
+			}
+		} else {
+			for k := gr.start; k < gr.end; k++ {
+				F := pw[k] * dp[pD[k]&maxDexp] * e
+				g := pDf[k] - lx
+				r.A += F
+				r.D += F * g
+				r.DD += F * (g*(g-1) - llx)
+			}
 		}
 	}
 	for k := range q.gN {

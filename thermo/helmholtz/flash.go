@@ -137,11 +137,11 @@ func (f *Fluid) flashPT(p, T float64) (thermo.State, error) {
 func (f *Fluid) statePT(p, T float64, ph thermo.Phase, sp *satPoint, guess float64) (thermo.State, error) {
 	var tp tauPart
 	f.q.tauPart(f.tr/T, &tp)
-	rho, err := f.density(&tp, T, p, ph, sp, guess)
+	rho, r, err := f.density(&tp, T, p, ph, sp, guess)
 	if err != nil {
 		return thermo.State{}, err
 	}
-	s, _ := f.props(&tp, T, rho)
+	s, _ := f.propsR(&tp, T, rho, r)
 	s.P = p
 	s.Phase = ph
 	return s, nil

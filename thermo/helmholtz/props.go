@@ -10,9 +10,13 @@ import (
 // props computes the single-phase state at (T, rho) from the tau cache.
 // Formulas of testdata/reference/eos/NOTES.md section 5.
 func (f *Fluid) props(tp *tauPart, T, rho float64) (thermo.State, resid) {
+	return f.propsR(tp, T, rho, f.q.residual(tp, rho/f.rhor, true))
+}
+
+// propsR is props with the full residual derivatives r at (T, rho) given.
+func (f *Fluid) propsR(tp *tauPart, T, rho float64, r resid) (thermo.State, resid) {
 	delta := rho / f.rhor
 	tau := tp.tau
-	r := f.q.residual(tp, delta, true)
 	i := f.q.ideal(tau)
 	R := f.r
 	RT := R * T
@@ -104,18 +108,22 @@ const (
 // a bracket [lo, hi] (hi = 0: unbounded). A point where dp/drho <= 0 moves
 // the bracket away from the unstable region (down for vapour, up for
 // liquid). Returns an error wrapping ErrNoConvergence if it fails.
-func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64) (float64, error) {
+func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64) (float64, resid, error) {
 	if hi > 0 && (rho <= lo || rho >= hi) {
 		rho = 0.5 * (lo + hi)
 	}
 	if rho <= lo {
 		rho = lo*1.01 + 1e-12
 	}
+	RT := f.r * T
 	for it := 0; it < 200; it++ {
-		pc, dp := f.pOf(tp, T, rho)
+		// Full derivatives (the tau ones cost a few multiplications per
+		// term): the last evaluation is reused for the properties.
+		r := f.q.residual(tp, rho/f.rhor, true)
+		pc, dp := rho*RT*(1+r.D), RT*(1+2*r.D+r.DD)
 		fx := pc - p
 		if math.IsNaN(fx) || math.IsNaN(dp) {
-			return 0, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa: non-finite pressure: %w", f.name, T, p, thermo.ErrNoConvergence)
+			return 0, resid{}, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa: non-finite pressure: %w", f.name, T, p, thermo.ErrNoConvergence)
 		}
 		if dp <= 0 {
 			// Unstable region.
@@ -143,7 +151,7 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 		// scales with rho R T, not with p.
 		tol := 1e-13*p + 1e-14*rho*f.r*T
 		if math.Abs(fx) <= tol && dp > 0 {
-			return rho, nil
+			return rho, r, nil
 		}
 		next := math.NaN()
 		if dp > 0 {
@@ -159,7 +167,7 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 		if math.Abs(next-rho) <= 1e-15*rho {
 			// Step below rounding: accept if the residual is small.
 			if math.Abs(fx) <= 1e-9*p+1e-12*rho*f.r*T && dp > 0 {
-				return rho, nil
+				return rho, r, nil
 			}
 			if hi > 0 && hi-lo <= 4e-16*hi {
 				break
@@ -170,7 +178,7 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 			break
 		}
 	}
-	return 0, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa did not converge: %w", f.name, T, p, thermo.ErrNoConvergence)
+	return 0, resid{}, fmt.Errorf("%s: density solve at T = %g K, p = %g Pa did not converge: %w", f.name, T, p, thermo.ErrNoConvergence)
 }
 
 // rhoMaxBracket is an upper density bound used as the high end of the
@@ -182,9 +190,10 @@ func (f *Fluid) rhoMaxBracket() float64 { return 4 * f.rhoLt }
 // mechanically stable, on the expected side of the critical density and,
 // when sat is given, of the saturated densities; a vapour root must be
 // plausible against the ideal-gas density. guess <= 0 picks a default start.
-func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoint, guess float64) (float64, error) {
+func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoint, guess float64) (float64, resid, error) {
 	rhoIG := p / (f.r * T)
 	var rho float64
+	var r resid
 	var err error
 	switch {
 	case ph == thermo.PhaseVapour && T < f.tc:
@@ -193,16 +202,16 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 		if g <= 0 || g >= hi {
 			g = min(f.virialGuess(tp, rhoIG), 0.9*hi)
 		}
-		rho, err = f.solveRho(tp, T, p, sideVapour, 0, hi, g)
+		rho, r, err = f.solveRho(tp, T, p, sideVapour, 0, hi, g)
 		if err != nil {
-			return 0, err
+			return 0, resid{}, err
 		}
 		Z := rhoIG / rho
 		if Z < 0.05 || Z > 2 {
-			return 0, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is implausible (Z = %g): %w", f.name, rho, T, p, Z, thermo.ErrPhase)
+			return 0, resid{}, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is implausible (Z = %g): %w", f.name, rho, T, p, Z, thermo.ErrPhase)
 		}
 		if rho >= hi || rho >= f.rhoc {
-			return 0, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is not below the saturated-vapour density %g: %w", f.name, rho, T, p, hi, thermo.ErrPhase)
+			return 0, resid{}, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is not below the saturated-vapour density %g: %w", f.name, rho, T, p, hi, thermo.ErrPhase)
 		}
 	case ph == thermo.PhaseLiquid:
 		_, lo, sat := f.branchBounds(T, sat)
@@ -217,26 +226,26 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 				g = 1.5 * f.rhoc
 			}
 		}
-		rho, err = f.solveRho(tp, T, p, sideLiquid, lo, f.rhoMaxBracket(), max(g, lo*1.000001))
+		rho, r, err = f.solveRho(tp, T, p, sideLiquid, lo, f.rhoMaxBracket(), max(g, lo*1.000001))
 		if err != nil {
-			return 0, err
+			return 0, resid{}, err
 		}
 		if rho <= lo || rho <= f.rhoc {
-			return 0, fmt.Errorf("%s: liquid root rho = %g kg/m3 at T = %g K, p = %g Pa is not above the saturated-liquid density %g: %w", f.name, rho, T, p, lo, thermo.ErrPhase)
+			return 0, resid{}, fmt.Errorf("%s: liquid root rho = %g kg/m3 at T = %g K, p = %g Pa is not above the saturated-liquid density %g: %w", f.name, rho, T, p, lo, thermo.ErrPhase)
 		}
 	default:
 		g := guess
 		if g <= 0 {
 			g = min(f.virialGuess(tp, rhoIG), 2*f.rhoc)
 		}
-		rho, err = f.solveRho(tp, T, p, sideSuper, 0, f.rhoMaxBracket(), g)
+		rho, r, err = f.solveRho(tp, T, p, sideSuper, 0, f.rhoMaxBracket(), g)
 		if err != nil {
-			return 0, err
+			return 0, resid{}, err
 		}
 	}
 	// solveRho returns only converged roots with dp/drho > 0 (mechanically
 	// stable); the branch checks are above.
-	return rho, nil
+	return rho, r, nil
 }
 
 // branchBounds returns the largest plausible vapour density and the
