@@ -23,6 +23,10 @@ import (
 // oldest segment is kept in the file "position" ("<sequence> <byte offset>\n",
 // replaced atomically by rename) after every acknowledged chunk, so a restart
 // resumes where delivery stopped. A segment is deleted once fully delivered.
+// Delivery is exactly once except for a crash between the server's
+// acknowledgement and the position save: then at most that one chunk is sent
+// again on the next start (InfluxDB overwrites identical points;
+// VictoriaMetrics would keep a duplicate sample).
 //
 // The file "lock" holds an exclusive advisory lock (flock) while a sink uses
 // the directory, so two sinks never share a spool.
