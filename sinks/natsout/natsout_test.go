@@ -8,6 +8,8 @@ import (
 	"math"
 	"net"
 	"reflect"
+	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -296,40 +298,115 @@ func TestConfigValidate(t *testing.T) {
 	}
 }
 
-// Core publishing while the server is away fills the reconnect buffer; what
-// does not fit is refused, counted and reported, never lost silently. What
-// fitted is delivered after the reconnect: a JetStream stream created before
-// the outage (and restored from its directory on restart) captures it.
-func TestCoreReconnectBuffer(t *testing.T) {
-	dir := t.TempDir()
-	srv, url := startServer(t, dir, -1)
-	port := srv.Addr().(*net.TCPAddr).Port
-	func() {
-		nc, err := nats.Connect(url)
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer nc.Close()
-		js, err := jetstream.New(nc)
-		if err != nil {
-			t.Fatal(err)
-		}
-		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
-		defer cancel()
-		if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "CAPTURE", Subjects: []string{"exergywatch.>"}, Storage: jetstream.FileStorage}); err != nil {
-			t.Fatal(err)
+// tcpProxy forwards a loopback port to the server. Down closes the listener
+// and every forwarded connection (the network between sink and server is
+// gone, the server stays up); Up listens again on the same port.
+type tcpProxy struct {
+	t      *testing.T
+	addr   string
+	target string
+	mu     sync.Mutex
+	ln     net.Listener
+	conns  []net.Conn
+	wg     sync.WaitGroup
+}
+
+func newTCPProxy(t *testing.T, target string) *tcpProxy {
+	p := &tcpProxy{t: t, target: target}
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p.addr = ln.Addr().String()
+	p.serve(ln)
+	t.Cleanup(p.Down)
+	return p
+}
+
+func (p *tcpProxy) serve(ln net.Listener) {
+	p.mu.Lock()
+	p.ln = ln
+	p.mu.Unlock()
+	p.wg.Add(1)
+	go func() {
+		defer p.wg.Done()
+		for {
+			c, err := ln.Accept()
+			if err != nil {
+				return
+			}
+			s, err := net.Dial("tcp", p.target)
+			if err != nil {
+				c.Close()
+				continue
+			}
+			p.mu.Lock()
+			p.conns = append(p.conns, c, s)
+			p.mu.Unlock()
+			p.wg.Add(2)
+			go func() { defer p.wg.Done(); _, _ = io.Copy(s, c); s.Close() }()
+			go func() { defer p.wg.Done(); _, _ = io.Copy(c, s); c.Close() }()
 		}
 	}()
-	s, err := New("nats", Config{URL: url, ReconnectBufBytes: 64 << 10, ReconnectWaitMS: 50}, quiet)
+}
+
+func (p *tcpProxy) Down() {
+	p.mu.Lock()
+	if p.ln != nil {
+		p.ln.Close()
+		p.ln = nil
+	}
+	for _, c := range p.conns {
+		c.Close()
+	}
+	p.conns = nil
+	p.mu.Unlock()
+	p.wg.Wait()
+}
+
+func (p *tcpProxy) Up() {
+	ln, err := net.Listen("tcp", p.addr)
+	if err != nil {
+		p.t.Fatal(err)
+	}
+	p.serve(ln)
+}
+
+// Core publishing while the connection is down fills the reconnect buffer;
+// what does not fit is refused, counted and reported, never lost silently.
+// What fitted is delivered, in order, after the reconnect. The outage is a
+// TCP proxy between sink and server going away, so the subscriber (connected
+// to the server directly) listens all along.
+func TestCoreReconnectBuffer(t *testing.T) {
+	_, url := startServer(t, t.TempDir(), -1)
+	sub, err := nats.Connect(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer sub.Close()
+	ch := make(chan *nats.Msg, 2000)
+	if _, err := sub.ChanSubscribe("exergywatch.>", ch); err != nil {
+		t.Fatal(err)
+	}
+	if err := sub.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	proxy := newTCPProxy(t, strings.TrimPrefix(url, "nats://"))
+	s, err := New("nats", Config{URL: "nats://" + proxy.addr, ReconnectBufBytes: 64 << 10, ReconnectWaitMS: 50}, quiet)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer s.Close(context.Background())
-	srv.Shutdown()
-	srv.WaitForShutdown()
 	deadline := time.Now().Add(5 * time.Second)
+	for !s.nc.IsConnected() && time.Now().Before(deadline) {
+		time.Sleep(10 * time.Millisecond)
+	}
+	proxy.Down()
 	for s.nc.IsConnected() && time.Now().Before(deadline) {
 		time.Sleep(10 * time.Millisecond)
+	}
+	if s.nc.IsConnected() {
+		t.Fatal("client did not notice the outage")
 	}
 	ctx := context.Background()
 	var accepted int
@@ -349,21 +426,16 @@ func TestCoreReconnectBuffer(t *testing.T) {
 		t.Errorf("buffered %d bytes, want some and at most 64 KiB plus one message", st.BufferedBytes)
 	}
 	t.Logf("%d records fitted in a 64 KiB reconnect buffer (%d bytes)", accepted, st.BufferedBytes)
-	startServer(t, dir, port)
-	deadline = time.Now().Add(10 * time.Second)
-	for !s.nc.IsConnected() && time.Now().Before(deadline) {
-		time.Sleep(10 * time.Millisecond)
-	}
-	fctx, cancel := context.WithTimeout(ctx, 5*time.Second)
-	defer cancel()
-	if err := s.nc.FlushWithContext(fctx); err != nil {
-		t.Fatal(err)
-	}
-	msgs := readStream(t, url, "CAPTURE", accepted)
-	for i, m := range msgs {
-		r, err := sinks.UnmarshalRecord(m.Data())
-		if err != nil || !r.Time.Equal(rec(i).Time) {
-			t.Fatalf("message %d: %v, time %v", i, err, r.Time)
+	proxy.Up()
+	for k := 0; k < accepted; k++ {
+		select {
+		case m := <-ch:
+			r, err := sinks.UnmarshalRecord(m.Data)
+			if err != nil || !r.Time.Equal(rec(k).Time) {
+				t.Fatalf("message %d: %v, time %v, want %v", k, err, r.Time, rec(k).Time)
+			}
+		case <-time.After(10 * time.Second):
+			t.Fatalf("only %d of %d buffered messages arrived", k, accepted)
 		}
 	}
 }
