@@ -1,7 +1,9 @@
 package helmholtz
 
 import (
+	"syscall"
 	"testing"
+	"time"
 
 	"github.com/exergywatch/exergywatch/thermo"
 )
@@ -14,6 +16,7 @@ func benchFlash(b *testing.B, name string, pair thermo.Pair, x, y float64) {
 		b.Fatal(err)
 	}
 	b.ReportAllocs()
+	c0 := cpuTime()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		s, err := f.Flash(pair, x, y)
@@ -22,6 +25,19 @@ func benchFlash(b *testing.B, name string, pair thermo.Pair, x, y float64) {
 		}
 		sink = s
 	}
+	b.StopTimer()
+	// CPU time of this process per call: on a shared, overloaded machine
+	// it is a steadier figure than the wall-clock ns/op.
+	b.ReportMetric(float64(cpuTime()-c0)/float64(b.N), "cpu-ns/op")
+}
+
+// cpuTime returns the user+system CPU time of the process.
+func cpuTime() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
 // benchIsentropic times the (p,s) flash to p2 from the entropy of (p1, T1),

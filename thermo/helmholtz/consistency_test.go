@@ -618,3 +618,27 @@ func TestFlashHSSweep(t *testing.T) {
 		}
 	}
 }
+
+// TestSatNearCritical: SatT inverts SatP to 1e-9 at 60 temperatures from
+// 1e-2 to 1e-5 (relative) below the critical temperature, where the Maxwell
+// solve has to march in from 0.99 Tc (identity, no source). Closer than
+// about 1e-5 Tc the solve may report ErrNoConvergence (documented).
+func TestSatNearCritical(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		for i := 0; i <= 60; i++ {
+			x := math.Pow(10, -2-3*float64(i)/60)
+			T := f.tc * (1 - x)
+			p, err := f.SatP(T)
+			if err != nil {
+				t.Errorf("%s SatP(Tc(1-%.3g)): %v", name, x, err)
+				continue
+			}
+			f.lastSatP.Store(nil) // no cache hit
+			Ts, err := f.SatT(p)
+			if err != nil || relDiff(Ts, T) > 1e-9 {
+				t.Errorf("%s SatT(SatP(Tc(1-%.3g))) = %.12g, want %.12g: %v", name, x, Ts, T, err)
+			}
+		}
+	}
+}

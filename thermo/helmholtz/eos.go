@@ -293,32 +293,47 @@ func powi(x float64, n int) float64 {
 	return r
 }
 
-// tauPow returns tau^t: by multiplication for integer and half-integer t
-// (most exponents of these equations), else exp(t ln tau).
-func tauPow(tau, lnTau, t float64) float64 {
-	if t == math.Trunc(t) && math.Abs(t) <= 64 {
-		if t >= 0 {
-			return powi(tau, int(t))
-		}
-		return 1 / powi(tau, int(-t))
+// tauPow returns tau^t: when 8t is an integer (every exponent of IAPWS-95
+// and Span-Wagner, most of the others) as powi(tau, floor t) times
+// tau^(1/2), tau^(1/4), tau^(1/8) factors (r = [sqrt tau, tau^(1/4),
+// tau^(1/8)]), else exp(t ln tau).
+func tauPow(tau float64, r *[3]float64, lnTau, t float64) float64 {
+	t8 := 8 * t
+	if t8 != math.Trunc(t8) || math.Abs(t8) > 512 {
+		return math.Exp(t * lnTau)
 	}
-	if t2 := 2 * t; t2 == math.Trunc(t2) && math.Abs(t) <= 64 {
-		st := math.Sqrt(tau)
-		if t >= 0 {
-			return powi(tau, int(t-0.5)) * st
-		}
-		return 1 / (powi(tau, int(-t-0.5)) * st)
+	n := int(t8)
+	neg := n < 0
+	if neg {
+		n = -n
 	}
-	return math.Exp(t * lnTau)
+	v := powi(tau, n>>3)
+	if n&4 != 0 {
+		v *= r[0]
+	}
+	if n&2 != 0 {
+		v *= r[1]
+	}
+	if n&1 != 0 {
+		v *= r[2]
+	}
+	if neg {
+		return 1 / v
+	}
+	return v
 }
 
 // tauPart fills the tau-only factors of the residual terms.
 func (q *eos) tauPart(tau float64, tp *tauPart) {
 	tp.tau = tau
 	lnTau := math.Log(tau)
+	var roots [3]float64
+	roots[0] = math.Sqrt(tau)
+	roots[1] = math.Sqrt(roots[0])
+	roots[2] = math.Sqrt(roots[1])
 	var ut [maxUniqT]float64
 	for j, t := range q.uniq {
-		ut[j] = tauPow(tau, lnTau, t)
+		ut[j] = tauPow(tau, &roots, lnTau, t)
 	}
 	b2 := 0.0
 	for k, n := range q.pN {
@@ -539,7 +554,10 @@ func (q *eos) ideal(tau float64) ideal {
 		x := q.peT[k] * tau
 		e := math.Exp(-x) // exp(-theta tau)
 		o.A += n * math.Log1p(-e)
-		em := -math.Expm1(-x) // 1 - exp(-x)
+		em := 1 - e // exact enough unless x is small
+		if x < 0.5 {
+			em = -math.Expm1(-x)
+		}
 		o.T += n * x * e / em
 		o.TT -= n * x * x * e / (em * em)
 	}

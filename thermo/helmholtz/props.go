@@ -220,6 +220,8 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 			switch {
 			case sat != nil:
 				g = sat.rhoL
+			case f.ancRL.ok && T < 0.98*f.tc && T < f.ancRL.tr:
+				g = lo / (1 - f.ancTolL) // the rhoL ancillary, as widened in branchBounds
 			case f.ancRL.ok && T < f.ancRL.tr:
 				g = f.ancRL.eval(T)
 			default:

@@ -25,28 +25,44 @@ func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
 		return sp, err
 	}
 	// Near the critical point: march from the solution at 0.99 Tc towards
-	// T, dividing Tc - T by 3 per step, with starting densities from the
-	// scaling law rho - rho_c ~ (Tc - T)^0.35.
-	cur := f.satRef
-	for {
+	// T, halving Tc - T per step, with starting densities from the scaling
+	// law rho - rho_c ~ (Tc - T)^beta (beta fitted to the last two solutions,
+	// 0.35 at first); a failed step is retried with a smaller one.
+	cur, prev := f.satRef, satPoint{}
+	for steps := 0; steps < 200; steps++ {
 		dCur := f.tc - cur.T
-		dNext := max(dCur/3, f.tc-T)
-		r := math.Pow(dNext/dCur, 0.35)
-		rl := f.rhoc + (cur.rhoL-f.rhoc)*r
-		rv := f.rhoc - (f.rhoc-cur.rhoV)*r
-		Tn := f.tc - dNext
-		if dNext == f.tc-T {
-			Tn = T
+		var next satPoint
+		var err error
+		for frac := 0.5; ; frac = math.Sqrt(frac) {
+			dNext := max(dCur*frac, f.tc-T)
+			Tn := f.tc - dNext
+			if dNext == f.tc-T {
+				Tn = T
+			}
+			beta := 0.35
+			if prev.T > 0 {
+				if b := math.Log((prev.rhoL-prev.rhoV)/(cur.rhoL-cur.rhoV)) / math.Log((f.tc-prev.T)/dCur); b > 0.2 && b < 0.6 {
+					beta = b
+				}
+			}
+			r := math.Pow(dNext/dCur, beta)
+			mid := 0.5 * (cur.rhoL + cur.rhoV)
+			rl := mid + (cur.rhoL-mid)*r
+			rv := mid - (mid-cur.rhoV)*r
+			next, err = f.maxwellCore(Tn, rl, rv)
+			if err == nil || frac > 0.97 {
+				break
+			}
 		}
-		next, err := f.maxwellCore(Tn, rl, rv)
 		if err != nil {
 			return satPoint{}, err
 		}
-		if Tn == T {
+		if next.T == T {
 			return next, nil
 		}
-		cur = next
+		prev, cur = cur, next
 	}
+	return satPoint{}, fmt.Errorf("%s: Maxwell construction at T = %g K: near-critical march did not reach T: %w", f.name, T, thermo.ErrNoConvergence)
 }
 
 func (f *Fluid) maxwellCore(T, rl0, rv0 float64) (satPoint, error) {
@@ -160,7 +176,7 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 		} else {
 			lo = T
 		}
-		if math.Abs(sp.p-p) <= 1e-13*p {
+		if math.Abs(sp.p-p) <= 1e-12*p {
 			sp.p = p
 			f.lastSatP.Store(&sp)
 			return sp, nil
@@ -176,7 +192,7 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 		if !(Tn > lo && Tn < hi) || math.IsNaN(Tn) {
 			Tn = 0.5 * (lo + hi)
 		}
-		if math.Abs(Tn-T) <= 1e-14*T {
+		if math.Abs(Tn-T) <= 1e-13*T {
 			if math.Abs(sp.p-p) <= 1e-10*p {
 				sp.p = p
 				f.lastSatP.Store(&sp)
