@@ -122,7 +122,7 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 	// Measurement: up to an unescaped ',' or ' '.
 	i := 0
 	var meas []byte
-	meas, i = scanKey(line, i, ",  ")
+	meas, i = scanKey(line, i, &stopMeas)
 	if len(meas) == 0 {
 		return nil, fields, 0, false, fmt.Errorf("%w: missing measurement", ErrSyntax)
 	}
@@ -131,12 +131,12 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 	for i < len(line) && line[i] == ',' {
 		i++
 		var k, v []byte
-		k, i = scanKey(line, i, "=")
+		k, i = scanKey(line, i, &stopKey)
 		if i >= len(line) || line[i] != '=' || len(k) == 0 {
 			return base, fields, 0, false, fmt.Errorf("%w: bad tag set", ErrSyntax)
 		}
 		i++
-		v, i = scanKey(line, i, ", ")
+		v, i = scanKey(line, i, &stopMeas)
 		if len(v) == 0 {
 			return base, fields, 0, false, fmt.Errorf("%w: empty tag value", ErrSyntax)
 		}
@@ -153,7 +153,7 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 	// Field set.
 	for {
 		var k []byte
-		k, i = scanKey(line, i, "=")
+		k, i = scanKey(line, i, &stopKey)
 		if i >= len(line) || line[i] != '=' || len(k) == 0 {
 			return base, fields, 0, false, fmt.Errorf("%w: bad field", ErrSyntax)
 		}
@@ -218,10 +218,18 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 	return base, fields, ts, hasTS, nil
 }
 
+// Stop sets of scanKey.
+var stopMeas, stopKey [256]bool
+
+func init() {
+	stopMeas[','], stopMeas[' '] = true, true
+	stopKey['='] = true
+}
+
 // scanKey reads up to an unescaped byte in stop, removing backslash escapes
 // of ',', ' ', '=' and '\\'. The result aliases line when nothing was
 // escaped.
-func scanKey(line []byte, i int, stop string) ([]byte, int) {
+func scanKey(line []byte, i int, stop *[256]bool) ([]byte, int) {
 	start := i
 	var out []byte
 	escaped := false
@@ -239,7 +247,7 @@ func scanKey(line []byte, i int, stop string) ([]byte, int) {
 				continue
 			}
 		}
-		if bytes.IndexByte([]byte(stop), c) >= 0 {
+		if stop[c] {
 			break
 		}
 		if escaped {

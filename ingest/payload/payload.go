@@ -109,6 +109,7 @@ type Decoder struct {
 	// Precision of line-protocol timestamps; 0 means time.Nanosecond.
 	Precision time.Duration
 	intern    map[string]string
+	buf       []byte
 }
 
 // NewDecoder returns a decoder for format f.

@@ -1,6 +1,7 @@
 package payload
 
 import (
+	"encoding/json"
 	"errors"
 	"math"
 	"testing"
@@ -125,6 +126,9 @@ func checkErrs(t *testing.T, got []Error, want []error) {
 func fuzzDecode(t *testing.T, f Format, data []byte) {
 	d := NewDecoder(f)
 	got, errs := d.Decode(data, recv, nil, nil)
+	if f == JSON && len(got) > 0 && !json.Valid(data) {
+		t.Fatalf("samples decoded from invalid JSON %q", data)
+	}
 	for _, s := range got {
 		if s.Tag == "" {
 			t.Fatalf("sample without tag from %q", data)
@@ -169,4 +173,65 @@ func FuzzDecodeLineProtocol(f *testing.F) {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, data []byte) { fuzzDecode(t, LineProtocol, data) })
+}
+
+func TestJSONEscapesAndUnicode(t *testing.T) {
+	// RFC 8259 section 7 escapes; U+1D11E as the surrogate pair \ud834\udd1e.
+	in := `[{"tag":"a\"b\\c\/\u00e9\ud834\udd1e","value":1},{"t\u0061g":"plain","value":2},{"tag":"x\ud800","value":3}]`
+	got, errs := NewDecoder(JSON).Decode([]byte(in), recv, nil, nil)
+	if len(errs) != 0 || len(got) != 3 {
+		t.Fatalf("got %+v %v", got, errs)
+	}
+	if got[0].Tag != "a\"b\\c/é𝄞" || got[1].Tag != "plain" || got[2].Tag != "x\uFFFD" {
+		t.Fatalf("tags %q %q %q", got[0].Tag, got[1].Tag, got[2].Tag)
+	}
+	for _, bad := range []string{`{"tag":"a","value":01}`, `{"tag":"a","value":1.}`, `{"tag":"a","value":-}`, `{"tag":"a\x01","value":1}`,
+		`{"tag":"a","value":1}x`, `{"tag":"\q","value":1}`, `{"tag":"a" "value":1}`, `[1,]`, `{"tag":"a","value":tru}`} {
+		if _, errs := NewDecoder(JSON).Decode([]byte(bad), recv, nil, nil); len(errs) != 1 || !errors.Is(errs[0], ErrSyntax) {
+			t.Errorf("%q: errs %v, want one ErrSyntax (RFC 8259 grammar)", bad, errs)
+		}
+	}
+}
+
+// FuzzJSONRoundTrip encodes a sample with encoding/json and decodes it with
+// the hand-written decoder: tag, value, time and status must survive.
+func FuzzJSONRoundTrip(f *testing.F) {
+	f.Add("T1.PT101", 12.5, int64(1764583200123), uint32(0), true)
+	f.Add("ä\"\\\n\u2028😀", -1e-300, int64(-1), uint32(0x80AB0000), false)
+	f.Add("", 0.0, int64(0), uint32(0x40000000), true)
+	f.Fuzz(func(t *testing.T, tag string, v float64, ms int64, status uint32, withTS bool) {
+		if math.IsNaN(v) || math.IsInf(v, 0) || ms > 1e15 || ms < -1e15 {
+			return // not representable in JSON / refused by design
+		}
+		m := map[string]any{"tag": tag, "value": v, "status": status, "extra": []any{map[string]any{"x": nil}, "y"}}
+		if withTS {
+			m["ts"] = ms
+		}
+		data, err := json.Marshal(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got, errs := NewDecoder(Auto).Decode(data, recv, nil, nil)
+		if tag == "" {
+			if len(errs) != 1 || !errors.Is(errs[0], ErrNoTag) {
+				t.Fatalf("empty tag: %v", errs)
+			}
+			return
+		}
+		if len(errs) != 0 || len(got) != 1 {
+			t.Fatalf("%s: got %+v errs %v", data, got, errs)
+		}
+		s := got[0]
+		var back struct{ Tag string }
+		if err := json.Unmarshal(data, &back); err != nil {
+			t.Fatal(err)
+		}
+		wantTag := back.Tag // encoding/json's replacement of invalid UTF-8
+		if s.Tag != wantTag || s.Value != v || s.StatusCode != status || !s.HasStatus || s.Quality != ingest.QualityFromStatus(status) {
+			t.Fatalf("%s: got %+v", data, s)
+		}
+		if withTS && !s.SourceTime.Equal(time.UnixMilli(ms)) {
+			t.Fatalf("%s: time %v want %v", data, s.SourceTime, time.UnixMilli(ms))
+		}
+	})
 }
