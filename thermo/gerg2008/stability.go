@@ -367,14 +367,19 @@ func (e *phaseEval) fugacity(x *[nComp]float64, T, p float64, lnphi *[nComp]floa
 // Stable reports whether the gas state at p in Pa and T in K is stable
 // against splitting into two phases, by Michelsen's tangent-plane-distance
 // test (M.L. Michelsen, Fluid Phase Equilib. 9 (1982) 1-19) with GERG-2008
-// fugacity coefficients: from vapour-like and liquid-like trial phases
-// (Wilson K-factors) and from the pure heaviest component, successive
-// substitution W_i = exp(ln z_i + ln phi_i(z) - ln phi_i(w)); the state is
-// unstable if the modified tangent-plane distance 1 + sum W_i (ln W_i +
-// ln phi_i(w) - ln z_i - ln phi_i(z) - 1) becomes negative. For each trial
-// composition the density root with the lower Gibbs energy is used. An error
-// is returned when the feed itself has no gas state (as Flash). Stable takes
-// 1-3 ms of CPU for an 11-component gas and allocates; Flash calls it only for a Mixture made with
+// fugacity coefficients. The feed's fugacities are those of its gas root
+// (the state Flash returns). From three trial phases, vapour-like and
+// liquid-like ones from Wilson K-factors and the nearly pure heaviest
+// component, successive substitution W_i = exp(ln z_i + ln phi_i(z) -
+// ln phi_i(w)) runs until W converges (1e-10 in ln W), collapses onto the feed,
+// or 300 iterations pass; for each trial composition the density root (the
+// smallest or the largest, see fugacity) with the lower Gibbs energy is used.
+// The state is unstable as soon as the modified tangent-plane distance
+// 1 + sum W_i (ln W_i + ln phi_i(w) - ln z_i - ln phi_i(z) - 1) drops below
+// -1e-9; otherwise it is reported stable (also when a trial ran out of
+// iterations). An error is returned when the feed has no gas state (as
+// Flash). Stable takes 1-3 ms of CPU for an 11-component gas and allocates
+// its work arrays; Flash calls it only for a Mixture made with
 // WithStabilityCheck.
 func (m *Mixture) Stable(p, T float64) (bool, error) {
 	if m.detail {
@@ -458,7 +463,6 @@ func (m *Mixture) Stable(p, T float64) (bool, error) {
 			if change < 1e-10 || (trivial < 1e-16 && math.Abs(sumNew-1) < 1e-9) {
 				break
 			}
-
 		}
 	}
 	return true, nil
