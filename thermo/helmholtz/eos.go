@@ -36,7 +36,6 @@ type eos struct {
 	pL   []int
 	pTi  []int // index of pT[k] in uniqT
 	uniq []float64
-	lUse [maxLexp + 1]bool
 	maxD int
 	pDf  []float64   // float64(pD)
 	grp  []termGroup // power terms grouped by l (terms are sorted by l)
@@ -225,7 +224,6 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 			idx = len(q.uniq) - 1
 		}
 		q.pTi = append(q.pTi, idx)
-		q.lUse[q.pL[k]] = true
 		if q.pD[k] > q.maxD {
 			q.maxD = q.pD[k]
 		}

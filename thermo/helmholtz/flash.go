@@ -253,11 +253,9 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 	state := func(T, guess float64) (thermo.State, error) {
 		switch branch {
 		case thermo.PhaseLiquid, thermo.PhaseVapour:
-			ph := branch
-			if ph == thermo.PhaseVapour && T >= f.tc {
-				ph = thermo.PhaseVapour
-			}
-			return f.statePT(p, T, ph, nil, guess)
+			// The branch is known from the phase boundary at p; above Tc
+			// the vapour branch continues as gas below pc.
+			return f.statePT(p, T, branch, nil, guess)
 		case thermo.PhaseSupercritical:
 			ph := thermo.PhaseSupercritical
 			if T < f.tc {
@@ -283,19 +281,13 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		T = 0.5 * (lo + hi)
 	}
 	loKnown, hiKnown := edge != nil && branch == thermo.PhaseVapour, edge != nil && branch == thermo.PhaseLiquid
-	guess := 0.0
-	prevRho := 0.0
+	guess := 0.0 // density of the previous iterate: start of the next density solve
 	fxPrev := math.Inf(1)
-	var last thermo.State
 	for it := 0; it < 100; it++ {
 		s, err := state(T, guess)
 		if err != nil {
-			if errors.Is(err, thermo.ErrPhase) && branch == thermo.PhaseUnknown {
-				return thermo.State{}, err
-			}
 			return thermo.State{}, err
 		}
-		last = s
 		v, d := value(&s)
 		fx := v - y
 		scale := d * T                   // y change for dT = T
@@ -332,8 +324,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 			}
 		}
 		if Tn == T {
-			// At an unevaluated bound already: the target lies outside.
-			return thermo.State{}, f.outside(isH, y, s, fx)
+			break // bracket collapsed without meeting the tolerance
 		}
 		if (Tn == lo && !loKnown) || (Tn == hi && !hiKnown) {
 			// Evaluate the bound; if the target is beyond it, report range.
@@ -354,21 +345,13 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 				hiKnown = true
 			}
 			Tn = 0.5 * (lo + hi)
-			if vb > y {
-				hi = sb.T
-			} else {
-				lo = sb.T
-			}
-			Tn = 0.5 * (lo + hi)
 		}
 		if math.Abs(Tn-T) <= 1e-14*T && math.Abs(fx) <= 1e-9*scale {
 			return s, nil
 		}
-		prevRho = s.Rho
-		guess = prevRho
+		guess = s.Rho
 		T = Tn
 	}
-	_ = last
 	q := "s"
 	if isH {
 		q = "h"
