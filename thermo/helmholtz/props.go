@@ -197,7 +197,7 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 	var err error
 	switch {
 	case ph == thermo.PhaseVapour && T < f.tc:
-		hi, _, _ := f.branchBounds(T, sat)
+		hi, _, _ := f.branchBounds(T, sat, false)
 		g := guess
 		if g <= 0 || g >= hi {
 			g = min(f.virialGuess(tp, rhoIG), 0.9*hi)
@@ -214,7 +214,7 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 			return 0, resid{}, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is not below the saturated-vapour density %g: %w", f.name, rho, T, p, hi, thermo.ErrPhase)
 		}
 	case ph == thermo.PhaseLiquid:
-		_, lo, sat := f.branchBounds(T, sat)
+		_, lo, sat := f.branchBounds(T, sat, true)
 		g := guess
 		if g <= lo {
 			switch {
@@ -256,7 +256,9 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 // the ancillary densities widened by three times their measured deviation
 // from this equation (calibrate) plus 0.5 %. For pseudo-pure air the
 // ancillaries are used as they are, widened the same way.
-func (f *Fluid) branchBounds(T float64, sat *satPoint) (rhoVmax, rhoLmin float64, sp *satPoint) {
+//
+// Only the bound of the requested branch (liquid or not) is evaluated.
+func (f *Fluid) branchBounds(T float64, sat *satPoint, liquid bool) (rhoVmax, rhoLmin float64, sp *satPoint) {
 	if sat == nil && !f.pseudoPure && T >= 0.98*f.tc {
 		if s, err := f.maxwell(T, 0, 0); err == nil {
 			sat = &s
@@ -267,10 +269,10 @@ func (f *Fluid) branchBounds(T float64, sat *satPoint) (rhoVmax, rhoLmin float64
 	}
 	rhoVmax, rhoLmin = f.rhoc, f.rhoc
 	if T < 0.98*f.tc {
-		if f.ancRV.ok && T < f.ancRV.tr {
+		if !liquid && f.ancRV.ok && T < f.ancRV.tr {
 			rhoVmax = min(rhoVmax, f.ancRV.eval(T)*(1+f.ancTolV))
 		}
-		if f.ancRL.ok && T < f.ancRL.tr {
+		if liquid && f.ancRL.ok && T < f.ancRL.tr {
 			rhoLmin = max(rhoLmin, f.ancRL.eval(T)*(1-f.ancTolL))
 		}
 	}
