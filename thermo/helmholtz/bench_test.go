@@ -78,3 +78,14 @@ func BenchmarkPSSteamTurbineWet(b *testing.B) {
 	benchIsentropic(b, "water-iapws95", 10e6, 800, 0.05e6, thermo.PhaseTwoPhase)
 }
 func BenchmarkPHAmmoniaVapour(b *testing.B) { benchFlash(b, "ammonia", thermo.PH, 1.2e6, 1.7e6) }
+
+// (h,s) flash of a superheated ammonia state (each Newton step in p is a
+// (p,h) flash at a new pressure, so the per-pressure caches do not help).
+func BenchmarkHSAmmoniaVapour(b *testing.B) {
+	f := mustNew(b, "ammonia")
+	s, err := f.Flash(thermo.PT, 1.2e6, 370)
+	if err != nil {
+		b.Fatal(err)
+	}
+	benchFlash(b, "ammonia", thermo.HS, s.H, s.S)
+}

@@ -199,6 +199,12 @@ func (f *Fluid) flashPX(p, x float64) (thermo.State, error) {
 // saturation state at p, then Newton on T with the density re-solved on the
 // known branch at each step, safeguarded by bisection.
 func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
+	return f.flashPYc(p, y, isH, true)
+}
+
+// flashPYc is flashPY; store says whether the phase boundary at p may be
+// cached (the (h,s) flash visits many pressures once each and does not).
+func (f *Fluid) flashPYc(p, y float64, isH, store bool) (thermo.State, error) {
 	if err := f.checkP(p); err != nil {
 		return thermo.State{}, err
 	}
@@ -208,7 +214,7 @@ func (f *Fluid) flashPY(p, y float64, isH bool) (thermo.State, error) {
 	if p >= f.pc {
 		branch = thermo.PhaseSupercritical // liquid below Tc, set per T in solveT
 	} else {
-		e, err := f.edges(p)
+		e, err := f.edges(p, store)
 		if err != nil {
 			return thermo.State{}, err
 		}
@@ -389,16 +395,16 @@ type edgeSet struct {
 
 // edges returns the phase boundary at p, reusing the last one computed when
 // p is the same (one machine's outlet pressure in a monitoring loop).
-func (f *Fluid) edges(p float64) (*edgeSet, error) {
+func (f *Fluid) edges(p float64, store bool) (edgeSet, error) {
 	if c := f.lastEdges.Load(); c != nil && c.p == p {
-		return c, nil
+		return *c, nil
 	}
-	e := &edgeSet{p: p, pure: !f.pseudoPure}
+	e := edgeSet{p: p, pure: !f.pseudoPure}
 	if !f.pseudoPure {
 		if p >= f.satTriple.p {
-			sp, err := f.satAtP(p)
+			sp, err := f.satAtPc(p, store)
 			if err != nil {
-				return nil, err
+				return edgeSet{}, err
 			}
 			e.sat, e.split = sp, true
 			e.l, e.v = f.satStates(sp)
@@ -409,22 +415,25 @@ func (f *Fluid) edges(p float64) (*edgeSet, error) {
 		if okb && okd && Tb < Td {
 			l, err := f.statePT(p, Tb, thermo.PhaseLiquid, nil, 0)
 			if err != nil {
-				return nil, err
+				return edgeSet{}, err
 			}
 			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
 			if err != nil {
-				return nil, err
+				return edgeSet{}, err
 			}
 			e.l, e.v, e.split = l, v, true
 		} else if okd && !okb {
 			v, err := f.statePT(p, Td, thermo.PhaseVapour, nil, 0)
 			if err != nil {
-				return nil, err
+				return edgeSet{}, err
 			}
 			e.v, e.vOnly = v, true
 		}
 	}
-	f.lastEdges.Store(e)
+	if store {
+		c := e
+		f.lastEdges.Store(&c)
+	}
 	return e, nil
 }
 
@@ -439,7 +448,7 @@ func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
 	var last error
 	for it := 0; it < 200; it++ {
 		p := min(max(math.Exp(lnp), 1), f.pmax)
-		st, err := f.flashPY(p, h, true)
+		st, err := f.flashPYc(p, h, true, false)
 		if err != nil {
 			var re *thermo.RangeError
 			if errors.As(err, &re) && re.Quantity == "h" {
@@ -463,7 +472,7 @@ func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
 				last = err
 				continue
 			}
-			e, eerr := f.edges(p)
+			e, eerr := f.edges(p, false)
 			if !errors.Is(err, thermo.ErrPhase) || !f.pseudoPure || eerr != nil || !e.split {
 				return thermo.State{}, err
 			}
@@ -483,12 +492,11 @@ func (f *Fluid) flashHS(h, s float64) (thermo.State, error) {
 		if math.Abs(fx) <= 1e-11*max(math.Abs(s), f.r) && err == nil {
 			return st, nil
 		}
-		ctx := fmt.Sprintf("value at h = %g J/kg and p = %g Pa", h, p)
 		if fx < 0 && p <= 1 {
-			return thermo.State{}, thermo.Above(f.name, "s", "J/(kg K)", s, st.S, ctx)
+			return thermo.State{}, thermo.Above(f.name, "s", "J/(kg K)", s, st.S, fmt.Sprintf("value at h = %g J/kg and p = %g Pa", h, p))
 		}
 		if fx > 0 && p >= f.pmax {
-			return thermo.State{}, thermo.Below(f.name, "s", "J/(kg K)", s, st.S, ctx)
+			return thermo.State{}, thermo.Below(f.name, "s", "J/(kg K)", s, st.S, fmt.Sprintf("value at h = %g J/kg and p = %g Pa", h, p))
 		}
 		if fx > 0 {
 			loP, loKnown = p, true

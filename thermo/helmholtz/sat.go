@@ -133,7 +133,11 @@ func (f *Fluid) maxwellCore(T, rl0, rv0 float64) (satPoint, error) {
 
 // satAtP finds the saturation temperature at p by Newton's method on ln p
 // with the Clapeyron slope, each step a Maxwell solve.
-func (f *Fluid) satAtP(p float64) (satPoint, error) {
+func (f *Fluid) satAtP(p float64) (satPoint, error) { return f.satAtPc(p, true) }
+
+// satAtPc is satAtP; store says whether to cache the result (one
+// allocation) for the next call at the same p.
+func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 	if f.pseudoPure {
 		return satPoint{}, fmt.Errorf("%s: pseudo-pure fluid has no Maxwell saturation: %w", f.name, thermo.ErrUnsupported)
 	}
@@ -178,7 +182,10 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 		}
 		if math.Abs(sp.p-p) <= 1e-12*p {
 			sp.p = p
-			f.lastSatP.Store(&sp)
+			if store {
+				c := sp
+				f.lastSatP.Store(&c)
+			}
 			return sp, nil
 		}
 		// Clapeyron: dp/dT = (sV - sL)/(vV - vL).
@@ -195,7 +202,10 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) {
 		if math.Abs(Tn-T) <= 1e-13*T {
 			if math.Abs(sp.p-p) <= 1e-10*p {
 				sp.p = p
-				f.lastSatP.Store(&sp)
+				if store {
+					c := sp
+					f.lastSatP.Store(&c)
+				}
 				return sp, nil
 			}
 		}
