@@ -74,49 +74,49 @@ func pairArgNames(p thermo.Pair) [2]string {
 // ancillary saturation pressure decides when p is clearly away from it;
 // inside the band f.ancMargin, and above 0.99 Tc, the Maxwell solution does
 // and is returned for bracketing the density.
-func (f *Fluid) classify(T, p float64) (thermo.Phase, *satPoint, error) {
+func (f *Fluid) classify(T, p float64) (thermo.Phase, satPoint, error) {
 	if T >= f.tc {
 		if p >= f.pc {
-			return thermo.PhaseSupercritical, nil, nil
+			return thermo.PhaseSupercritical, satPoint{}, nil
 		}
-		return thermo.PhaseVapour, nil, nil
+		return thermo.PhaseVapour, satPoint{}, nil
 	}
 	if f.pseudoPure {
 		if T >= f.ancPL.tr || p >= f.pc {
-			return thermo.PhaseLiquid, nil, nil
+			return thermo.PhaseLiquid, satPoint{}, nil
 		}
 		pb, pd := f.ancPL.eval(T), f.ancPV.eval(T)
 		switch {
 		case p >= pb:
-			return thermo.PhaseLiquid, nil, nil
+			return thermo.PhaseLiquid, satPoint{}, nil
 		case p <= pd:
-			return thermo.PhaseVapour, nil, nil
+			return thermo.PhaseVapour, satPoint{}, nil
 		}
-		return 0, nil, fmt.Errorf("%s: p = %g Pa at T = %g K lies between the dew (%g Pa) and bubble (%g Pa) pressures; two-phase air is not modelled: %w", f.name, p, T, pd, pb, thermo.ErrPhase)
+		return 0, satPoint{}, fmt.Errorf("%s: p = %g Pa at T = %g K lies between the dew (%g Pa) and bubble (%g Pa) pressures; two-phase air is not modelled: %w", f.name, p, T, pd, pb, thermo.ErrPhase)
 	}
 	if p >= f.pc {
-		return thermo.PhaseLiquid, nil, nil
+		return thermo.PhaseLiquid, satPoint{}, nil
 	}
 	if T < 0.99*f.tc {
 		pa := f.ancP.eval(T)
 		if p > pa*(1+f.ancMargin) {
-			return thermo.PhaseLiquid, nil, nil
+			return thermo.PhaseLiquid, satPoint{}, nil
 		}
 		if p < pa*(1-f.ancMargin) {
-			return thermo.PhaseVapour, nil, nil
+			return thermo.PhaseVapour, satPoint{}, nil
 		}
 	}
 	sp, err := f.maxwell(T, 0, 0)
 	if err != nil {
-		return 0, nil, err
+		return 0, satPoint{}, err
 	}
 	switch {
 	case p > sp.p:
-		return thermo.PhaseLiquid, &sp, nil
+		return thermo.PhaseLiquid, sp, nil
 	case p < sp.p:
-		return thermo.PhaseVapour, &sp, nil
+		return thermo.PhaseVapour, sp, nil
 	}
-	return 0, nil, fmt.Errorf("%s: p = %g Pa is the saturation pressure at T = %g K; (p,T) does not fix the state, use PX or TX: %w", f.name, p, T, thermo.ErrPhase)
+	return 0, satPoint{}, fmt.Errorf("%s: p = %g Pa is the saturation pressure at T = %g K; (p,T) does not fix the state, use PX or TX: %w", f.name, p, T, thermo.ErrPhase)
 }
 
 func (f *Fluid) flashPT(p, T float64) (thermo.State, error) {
@@ -130,7 +130,11 @@ func (f *Fluid) flashPT(p, T float64) (thermo.State, error) {
 	if err != nil {
 		return thermo.State{}, err
 	}
-	return f.statePT(p, T, ph, sp, 0)
+	var spp *satPoint // the Maxwell solution when classify needed it
+	if sp.T > 0 {
+		spp = &sp
+	}
+	return f.statePT(p, T, ph, spp, 0)
 }
 
 // statePT solves the density on the given branch and evaluates the state.

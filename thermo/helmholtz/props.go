@@ -214,12 +214,12 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 			return 0, resid{}, fmt.Errorf("%s: vapour root rho = %g kg/m3 at T = %g K, p = %g Pa is not below the saturated-vapour density %g: %w", f.name, rho, T, p, hi, thermo.ErrPhase)
 		}
 	case ph == thermo.PhaseLiquid:
-		_, lo, sat := f.branchBounds(T, sat, true)
+		_, lo, bsat := f.branchBounds(T, sat, true)
 		g := guess
 		if g <= lo {
 			switch {
-			case sat != nil:
-				g = sat.rhoL
+			case bsat.T > 0:
+				g = bsat.rhoL
 			case f.ancRL.ok && T < 0.98*f.tc && T < f.ancRL.tr:
 				g = lo / (1 - f.ancTolL) // the rhoL ancillary, as widened in branchBounds
 			case f.ancRL.ok && T < f.ancRL.tr:
@@ -258,14 +258,16 @@ func (f *Fluid) density(tp *tauPart, T, p float64, ph thermo.Phase, sat *satPoin
 // ancillaries are used as they are, widened the same way.
 //
 // Only the bound of the requested branch (liquid or not) is evaluated.
-func (f *Fluid) branchBounds(T float64, sat *satPoint, liquid bool) (rhoVmax, rhoLmin float64, sp *satPoint) {
-	if sat == nil && !f.pseudoPure && T >= 0.98*f.tc {
+func (f *Fluid) branchBounds(T float64, sat *satPoint, liquid bool) (rhoVmax, rhoLmin float64, sp satPoint) {
+	if sat != nil {
+		sp = *sat
+	} else if !f.pseudoPure && T >= 0.98*f.tc {
 		if s, err := f.maxwell(T, 0, 0); err == nil {
-			sat = &s
+			sp = s
 		}
 	}
-	if sat != nil {
-		return sat.rhoV * (1 + 1e-12), sat.rhoL * (1 - 1e-12), sat
+	if sp.T > 0 {
+		return sp.rhoV * (1 + 1e-12), sp.rhoL * (1 - 1e-12), sp
 	}
 	rhoVmax, rhoLmin = f.rhoc, f.rhoc
 	if T < 0.98*f.tc {
@@ -276,7 +278,7 @@ func (f *Fluid) branchBounds(T float64, sat *satPoint, liquid bool) (rhoVmax, rh
 			rhoLmin = max(rhoLmin, f.ancRL.eval(T)*(1-f.ancTolL))
 		}
 	}
-	return rhoVmax, rhoLmin, nil
+	return rhoVmax, rhoLmin, sp
 }
 
 // virialGuess solves p = rho R T (1 + B rho) with the second virial
