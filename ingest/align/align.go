@@ -377,7 +377,13 @@ func (e *Engine) value(idx int, start, end time.Time) Value {
 	}
 	var sum, covered float64
 	var from, to int64 = math.MaxInt64, math.MinInt64
-	for i, p := range tr.pts {
+	// Start at the newest point before the window (it holds into it).
+	first := sort.Search(len(tr.pts), func(i int) bool { return tr.pts[i].t >= s })
+	if first > 0 {
+		first--
+	}
+	for i := first; i < len(tr.pts); i++ {
+		p := tr.pts[i]
 		if p.t > en {
 			break
 		}

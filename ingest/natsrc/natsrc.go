@@ -6,15 +6,18 @@
 //
 //   - core: plain NATS subscriptions, at most once (latest value). When the
 //     ingest queue is full the batch is dropped and counted (queue_full).
-//   - jetstream: a durable pull consumer with explicit acknowledgement, at
-//     least once. Every message gets one ingest.Ack shared by its samples;
-//     the message is acknowledged only when every sample was taken into its
-//     machine window and the snapshot holding it was released (or the
-//     sample was dropped with a counted reason). A message that decodes to
-//     nothing is terminated (it would fail again). A crash or restart
-//     before the release leaves the message unacknowledged, so the server
-//     redelivers it after AckWait; redelivered samples already in the
-//     window are counted as duplicates.
+//   - jetstream: a durable pull consumer, at least once. Every message gets
+//     one ingest.Ack shared by its samples; the message counts as complete
+//     only when every sample was taken into its machine window and the
+//     snapshot holding it was released (or the sample was dropped with a
+//     counted reason). With ack_policy "all" (default) completed messages
+//     are acknowledged cumulatively every AckFlush, never beyond a message
+//     still in flight (see ackTracker); with "explicit" each message is
+//     acknowledged on completion. A message that decodes to nothing is
+//     complete at once (explicit: terminated), since it would fail again.
+//     A crash or restart before the release leaves the message
+//     unacknowledged, so the server redelivers it after AckWait;
+//     redelivered samples already in the window are counted as duplicates.
 //
 // The connection reconnects forever. The reconnect buffer holds outgoing
 // data while the link is down; for this subscriber that is the
@@ -68,10 +71,23 @@ type Config struct {
 	MaxAckPending int `yaml:"max_ack_pending"`
 	// FetchBatch is the pull batch size (default 512).
 	FetchBatch int `yaml:"fetch_batch"`
+	// AckPolicy: "all" (default) sends one cumulative acknowledgement per
+	// AckFlush for every message completed in order, never past a
+	// redelivered message still in flight; "explicit" acknowledges each
+	// message on its own. The consumer is created with this policy.
+	AckPolicy string `yaml:"ack_policy"`
+	// AckFlush is the interval of cumulative acknowledgements (default
+	// 100 ms). AckWait must exceed window + tick + AckFlush.
+	AckFlush time.Duration `yaml:"ack_flush"`
 
 	ReconnectWait time.Duration `yaml:"reconnect_wait"` // default 1 s
 	// ReconnectBufferBytes: default max(1 MiB, 128 B * MaxAckPending).
 	ReconnectBufferBytes int `yaml:"reconnect_buffer_bytes"`
+	// BatchSamples: samples gathered from several messages into one queue
+	// entry (default 1024); BatchLinger: longest wait before a partial
+	// batch is handed on (default 5 ms).
+	BatchSamples int           `yaml:"batch_samples"`
+	BatchLinger  time.Duration `yaml:"batch_linger"`
 	// Core subscription pending limits (slow-consumer protection).
 	PendingMsgs  int `yaml:"pending_msgs"`  // default 65536
 	PendingBytes int `yaml:"pending_bytes"` // default 64 MiB
@@ -125,11 +141,27 @@ func (c *Config) defaults() error {
 	if c.FetchBatch == 0 {
 		c.FetchBatch = 512
 	}
+	switch c.AckPolicy {
+	case "":
+		c.AckPolicy = "all"
+	case "all", "explicit":
+	default:
+		return fmt.Errorf("%w: ack_policy %q (all, explicit)", ErrConfig, c.AckPolicy)
+	}
+	if c.AckFlush == 0 {
+		c.AckFlush = 100 * time.Millisecond
+	}
 	if c.ReconnectWait == 0 {
 		c.ReconnectWait = time.Second
 	}
 	if c.ReconnectBufferBytes == 0 {
 		c.ReconnectBufferBytes = max(1<<20, 128*c.MaxAckPending)
+	}
+	if c.BatchSamples <= 0 {
+		c.BatchSamples = 1024
+	}
+	if c.BatchLinger <= 0 {
+		c.BatchLinger = 5 * time.Millisecond
 	}
 	if c.PendingMsgs == 0 {
 		c.PendingMsgs = 65536
@@ -320,41 +352,39 @@ func (s *Source) Run(ctx context.Context) error {
 }
 
 func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
-	dec := payload.NewDecoder(s.format)
-	dec.Precision = s.cfg.LinePrecision
-	var mu sync.Mutex // one decoder shared by the subscriptions' callbacks
+	bt := newBatcher(s, func(b []ingest.Sample) { s.q.Offer(b) })
+	bctx, bcancel := context.WithCancel(context.Background())
+	bdone := make(chan struct{})
+	go func() { defer close(bdone); bt.run(bctx, s.cfg.BatchLinger) }()
+	defer func() { bcancel(); <-bdone }()
 	var subs []*nats.Subscription
+	defer func() {
+		for _, sub := range subs {
+			_ = sub.Unsubscribe()
+		}
+	}()
 	for _, subj := range s.cfg.Subjects {
-		sub, err := nc.Subscribe(subj, func(m *nats.Msg) {
-			mu.Lock()
-			batch := s.decode(dec, m.Subject, m.Data)
-			mu.Unlock()
-			if len(batch) > 0 {
-				s.q.Offer(batch)
-			}
-		})
+		sub, err := nc.Subscribe(subj, func(m *nats.Msg) { bt.add(m.Subject, m.Data, nil) })
 		if err != nil {
 			return fmt.Errorf("nats subscribe %q: %w", subj, err)
 		}
+		subs = append(subs, sub)
 		if err := sub.SetPendingLimits(s.cfg.PendingMsgs, s.cfg.PendingBytes); err != nil {
 			return fmt.Errorf("nats pending limits: %w", err)
 		}
-		subs = append(subs, sub)
 	}
 	<-ctx.Done()
-	for _, sub := range subs {
-		_ = sub.Unsubscribe()
-	}
 	return nil
 }
 
-// decode turns one message into samples, counting and logging failures.
-func (s *Source) decode(dec *payload.Decoder, subject string, data []byte) []ingest.Sample {
+// decodeInto decodes one message, appending its samples to dst, counting
+// and logging failures (once per tag, or subject, per minute).
+func (s *Source) decodeInto(dec *payload.Decoder, subject string, data []byte, dst []ingest.Sample) []ingest.Sample {
 	now := s.clock.Now()
 	if s.metrics != nil {
 		s.metrics.Messages.Add(1)
 	}
-	batch, errs := dec.Decode(data, now, nil, nil)
+	dst, errs := dec.Decode(data, now, dst, nil)
 	if len(errs) > 0 {
 		if s.metrics != nil {
 			s.metrics.DecodeErrors.Add(uint64(len(errs)))
@@ -368,7 +398,7 @@ func (s *Source) decode(dec *payload.Decoder, subject string, data []byte) []ing
 			s.limiter.Warn(now, key, "payload decode error", "subject", subject, "err", e.Err)
 		}
 	}
-	return batch
+	return dst
 }
 
 func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
@@ -383,6 +413,9 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 		AckWait:        s.cfg.AckWait,
 		MaxAckPending:  s.cfg.MaxAckPending,
 		DeliverPolicy:  jetstream.DeliverAllPolicy,
+	}
+	if s.cfg.AckPolicy == "all" {
+		ccfg.AckPolicy = jetstream.AckAllPolicy
 	}
 	var cons jetstream.Consumer
 	// The server may be down at start: retry until ctx ends.
@@ -403,31 +436,78 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 		case <-time.After(s.cfg.ReconnectWait):
 		}
 	}
-	dec := payload.NewDecoder(s.format)
-	dec.Precision = s.cfg.LinePrecision
-	cc, err := cons.Consume(func(m jetstream.Msg) {
-		batch := s.decode(dec, m.Subject(), m.Data())
-		if len(batch) == 0 {
-			// Nothing usable: a redelivery would fail the same way.
-			_ = m.Term()
-			return
-		}
-		ack := ingest.NewAck(len(batch), func() {
-			if err := m.Ack(); err != nil {
-				s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+	tracker := &ackTracker{}
+	// Shutdown order: stop consuming, flush the batcher, then the acks.
+	bt := newBatcher(s, func(b []ingest.Sample) {
+		// On shutdown the batch is dropped unacknowledged: redelivered.
+		_ = s.q.Put(ctx, b)
+	})
+	bctx, bcancel := context.WithCancel(context.Background())
+	bdone := make(chan struct{})
+	go func() { defer close(bdone); bt.run(bctx, s.cfg.BatchLinger) }()
+	flushDone := make(chan struct{})
+	fctx, fcancel := context.WithCancel(ctx)
+	defer func() { fcancel(); <-flushDone }()
+	defer func() { bcancel(); <-bdone }() // runs before the ack flusher stops
+	go func() {
+		defer close(flushDone)
+		t := time.NewTicker(s.cfg.AckFlush)
+		defer t.Stop()
+		for {
+			var stop bool
+			select {
+			case <-fctx.Done():
+				stop = true // one last flush of what was completed
+			case <-t.C:
+			}
+			{
+				n, err := tracker.flush()
+				if err != nil {
+					s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+				} else if n > 0 && s.metrics != nil {
+					s.metrics.Acked.Add(uint64(n))
+				}
+			}
+			if stop {
 				return
 			}
-			if s.metrics != nil {
-				s.metrics.Acked.Add(1)
+		}
+	}()
+	cc, err := cons.Consume(func(m jetstream.Msg) {
+		var done func()
+		if s.cfg.AckPolicy == "all" {
+			md, err := m.Metadata()
+			if err != nil {
+				s.limiter.Warn(s.clock.Now(), "metadata", "jetstream message without metadata", "err", err)
+				return // never acknowledged: redelivered
+			}
+			done = tracker.add(md.Sequence.Stream, m.Ack)
+		} else {
+			done = func() {
+				if err := m.Ack(); err != nil {
+					s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+					return
+				}
+				if s.metrics != nil {
+					s.metrics.Acked.Add(1)
+				}
+			}
+		}
+		bt.add(m.Subject(), m.Data(), func(added []ingest.Sample) {
+			if len(added) == 0 {
+				// Nothing usable; a redelivery would fail the same way.
+				if s.cfg.AckPolicy == "all" {
+					done()
+				} else {
+					_ = m.Term()
+				}
+				return
+			}
+			ack := ingest.NewAck(len(added), done)
+			for i := range added {
+				added[i].Ack = ack
 			}
 		})
-		for i := range batch {
-			batch[i].Ack = ack
-		}
-		if err := s.q.Put(ctx, batch); err != nil {
-			// Shutting down: leave the message unacknowledged.
-			return
-		}
 	}, jetstream.PullMaxMessages(s.cfg.FetchBatch), jetstream.PullHeartbeat(2*time.Second),
 		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
 			s.limiter.Warn(s.clock.Now(), "consume", "jetstream consume", "err", err)

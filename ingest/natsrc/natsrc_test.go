@@ -169,6 +169,12 @@ func TestCoreWildcardsFormatsAndRestart(t *testing.T) {
 // each, restarts the server while the consumer is half-way through, and
 // checks that every sample arrived and every message was acknowledged.
 func TestJetStreamNoLossAcrossRestart(t *testing.T) {
+	for _, policy := range []string{"all", "explicit"} {
+		t.Run("ack_policy="+policy, func(t *testing.T) { noLoss(t, policy) })
+	}
+}
+
+func noLoss(t *testing.T, policy string) {
 	ns := startNATS(t, baseOpts(t, true))
 	pub, err := nats.Connect(ns.url(), nats.MaxReconnects(-1), nats.ReconnectWait(20*time.Millisecond))
 	if err != nil {
@@ -203,7 +209,7 @@ func TestJetStreamNoLossAcrossRestart(t *testing.T) {
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(16, met)
 	src, err := New(Config{URLs: []string{ns.url()}, Subjects: []string{"plant.>"}, Mode: ModeJetStream, Stream: "PLANT", Durable: "exergywatch",
-		AckWait: 2 * time.Second, FetchBatch: 32, ReconnectWait: 20 * time.Millisecond}, q, met, quietLog(), nil)
+		AckWait: 2 * time.Second, FetchBatch: 32, ReconnectWait: 20 * time.Millisecond, AckPolicy: policy, AckFlush: 20 * time.Millisecond}, q, met, quietLog(), nil)
 	if err != nil {
 		t.Fatal(err)
 	}

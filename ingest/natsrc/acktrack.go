@@ -1,0 +1,116 @@
+package natsrc
+
+import (
+	"container/heap"
+	"sync"
+)
+
+// ackTracker turns per-message completions into cumulative acknowledgements
+// for a consumer with AckAll policy, which acknowledges every pending
+// message with a stream sequence up to the acknowledged one. That is only
+// safe up to the lowest stream sequence still in flight, so the tracker
+// keeps:
+//
+//   - inOrder: messages delivered in increasing stream sequence, in
+//     delivery order; completed ones are popped from the front, and the
+//     newest popped becomes the candidate;
+//   - redelivered: messages delivered with a stream sequence below one seen
+//     before (redeliveries after AckWait or a restart), in a min-heap.
+//
+// flush acknowledges the candidate only if its stream sequence is below
+// every redelivered message still in flight. One acknowledgement per flush
+// replaces one per message.
+type ackTracker struct {
+	mu          sync.Mutex
+	inOrder     []*tracked
+	head        int
+	redelivered seqHeap
+	maxSeen     uint64
+	candidate   *tracked
+	sent        uint64 // stream sequence of the last cumulative ack
+	covered     int    // messages completed since the last flush
+}
+
+type tracked struct {
+	sseq  uint64
+	done  bool
+	ack   func() error
+	index int // heap index, -1 when not in the heap
+}
+
+// add registers a delivered message; the returned func marks it complete.
+func (t *ackTracker) add(sseq uint64, ack func() error) func() {
+	m := &tracked{sseq: sseq, ack: ack, index: -1}
+	t.mu.Lock()
+	if sseq > t.maxSeen {
+		t.maxSeen = sseq
+		t.inOrder = append(t.inOrder, m)
+	} else {
+		heap.Push(&t.redelivered, m)
+	}
+	t.mu.Unlock()
+	return func() { t.complete(m) }
+}
+
+func (t *ackTracker) complete(m *tracked) {
+	t.mu.Lock()
+	defer t.mu.Unlock()
+	if m.done {
+		return
+	}
+	m.done = true
+	t.covered++
+	if m.index >= 0 {
+		heap.Remove(&t.redelivered, m.index)
+		return
+	}
+	for t.head < len(t.inOrder) && t.inOrder[t.head].done {
+		t.candidate = t.inOrder[t.head]
+		t.inOrder[t.head] = nil
+		t.head++
+	}
+	if t.head > 1024 && t.head*2 > len(t.inOrder) {
+		n := copy(t.inOrder, t.inOrder[t.head:])
+		clear(t.inOrder[n:])
+		t.inOrder = t.inOrder[:n]
+		t.head = 0
+	}
+}
+
+// flush sends the cumulative acknowledgement if it is safe and new. It
+// returns the number of completed messages it stands for (for metrics).
+func (t *ackTracker) flush() (int, error) {
+	t.mu.Lock()
+	c := t.candidate
+	if c == nil || c.sseq <= t.sent || (t.redelivered.Len() > 0 && t.redelivered[0].sseq <= c.sseq) {
+		t.mu.Unlock()
+		return 0, nil
+	}
+	n := t.covered
+	t.covered = 0
+	t.sent = c.sseq
+	t.mu.Unlock()
+	return n, c.ack()
+}
+
+type seqHeap []*tracked
+
+func (h seqHeap) Len() int           { return len(h) }
+func (h seqHeap) Less(i, j int) bool { return h[i].sseq < h[j].sseq }
+func (h seqHeap) Swap(i, j int) {
+	h[i], h[j] = h[j], h[i]
+	h[i].index, h[j].index = i, j
+}
+func (h *seqHeap) Push(x any) {
+	m := x.(*tracked)
+	m.index = len(*h)
+	*h = append(*h, m)
+}
+func (h *seqHeap) Pop() any {
+	old := *h
+	m := old[len(old)-1]
+	old[len(old)-1] = nil
+	m.index = -1
+	*h = old[:len(old)-1]
+	return m
+}

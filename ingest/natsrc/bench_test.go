@@ -1,0 +1,212 @@
+package natsrc
+
+import (
+	"context"
+	"fmt"
+	"sort"
+	"strings"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/align"
+	"github.com/exergywatch/exergywatch/ingest/tagmap"
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
+)
+
+const (
+	e2eSamples = 200000 // samples in the stream
+	e2eTags    = 1000   // 100 machines x 10 tags
+)
+
+func e2eTagMap() tagmap.Config {
+	type q struct{ port, qty, unit string }
+	qs := []q{{"inlet", "p", "bar"}, {"inlet", "T", "degC"}, {"outlet", "p", "bar"}, {"outlet", "T", "degC"}, {"inlet", "flow", "t/h"},
+		{"shaft", "power", "MW"}, {"shaft", "speed", "rpm"}, {"outlet", "x", "%"}, {"ambient", "rh", "%"}, {"ambient", "T", "K"}}
+	var cfg tagmap.Config
+	for t := 0; t < e2eTags; t++ {
+		qq := qs[t%10]
+		cfg.Tags = append(cfg.Tags, tagmap.TagConfig{Tag: fmt.Sprintf("m%03d.t%d", t/10, t%10), Machine: fmt.Sprintf("m%03d", t/10),
+			Port: qq.port, Quantity: qq.qty, Unit: qq.unit, Checks: tagmap.CheckConfig{SpikeWindow: 7}})
+	}
+	return cfg
+}
+
+func e2eFill(b *testing.B, js jetstream.JetStream, start time.Time, perMsg int) {
+	b.Helper()
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	_ = js.DeleteStream(ctx, "BENCH")
+	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "BENCH", Subjects: []string{"bench.>"}, Storage: jetstream.FileStorage}); err != nil {
+		b.Fatal(err)
+	}
+	e2eMsgs := e2eSamples / perMsg
+	base := []float64{40, 450, 5, 250, 300, 50, 3000, 95, 60, 290}
+	for j := 0; j < e2eMsgs; j++ {
+		var sb strings.Builder
+		for i := 0; i < perMsg; i++ {
+			k := j*perMsg + i // sample number: tag k%1000 every 1000 samples, 10 us apart
+			ts := start.Add(time.Duration(k) * 10 * time.Microsecond).UnixNano()
+			tag := k % e2eTags
+			fmt.Fprintf(&sb, "m%03d.t%d value=%g %d\n", tag/10, tag%10, base[tag%10]*(1+0.001*float64((k/e2eTags)%7)), ts)
+		}
+		if _, err := js.PublishAsync(fmt.Sprintf("bench.u%d", j%4), []byte(sb.String())); err != nil {
+			b.Fatal(err)
+		}
+	}
+	select {
+	case <-js.PublishAsyncComplete():
+	case <-ctx.Done():
+		b.Fatal("publish timed out")
+	}
+}
+
+// bareRun consumes the whole stream with a plain nats.go consumer that only
+// counts messages, and returns the sample rate (messages x samples per
+// message / elapsed).
+func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int) float64 {
+	e2eMsgs := int64(e2eSamples / perMsg)
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	cons, err := js.CreateOrUpdateConsumer(ctx, "BENCH", jetstream.ConsumerConfig{Durable: fmt.Sprintf("bare%d", n), AckPolicy: jetstream.AckNonePolicy,
+		FilterSubjects: []string{"bench.>"}})
+	if err != nil {
+		b.Fatal(err)
+	}
+	var count atomic.Int64
+	done := make(chan struct{})
+	t0 := time.Now()
+	cc, err := cons.Consume(func(m jetstream.Msg) {
+		if count.Add(1) == e2eMsgs {
+			close(done)
+		}
+	}, jetstream.PullMaxMessages(512))
+	if err != nil {
+		b.Fatal(err)
+	}
+	select {
+	case <-done:
+	case <-ctx.Done():
+		b.Fatalf("bare subscriber got %d of %d", count.Load(), e2eMsgs)
+	}
+	el := time.Since(t0)
+	cc.Stop()
+	<-cc.Closed()
+	return float64(e2eSamples) / el.Seconds()
+}
+
+// pipelineRun runs the NATS source (JetStream durable, cumulative acks) ->
+// bounded queue -> engine (map, checks, window) -> snapshots every 100 ms
+// -> release (acks). The rate is timed until every sample was taken into a
+// window; then it waits (untimed) until every message was acknowledged.
+func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metrics) {
+	e2eMsgs := uint64(e2eSamples / perMsg)
+	tm, err := tagmap.Compile(e2eTagMap())
+	if err != nil {
+		b.Fatal(err)
+	}
+	met := &ingest.Metrics{}
+	eng, err := align.New(align.Config{Window: 5 * time.Second, LateHorizon: time.Hour}, tm, met, quietLog())
+	if err != nil {
+		b.Fatal(err)
+	}
+	q := ingest.NewQueue(256, met)
+	src, err := New(Config{URLs: []string{url}, Subjects: []string{"bench.>"}, Mode: ModeJetStream, Stream: "BENCH",
+		Durable: fmt.Sprintf("ew%d", n), FetchBatch: 512, MaxAckPending: 20000, AckFlush: 20 * time.Millisecond}, q, met, quietLog(), nil)
+	if err != nil {
+		b.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	ticker := time.NewTicker(100 * time.Millisecond)
+	defer ticker.Stop()
+	out := make(chan []*align.Snapshot, 4)
+	engDone, srcDone, relDone := make(chan error, 1), make(chan error, 1), make(chan struct{})
+	go func() { engDone <- eng.Run(ctx, q, ticker.C, nil, out) }()
+	go func() {
+		defer close(relDone)
+		for {
+			select {
+			case <-ctx.Done():
+				return
+			case snaps := <-out:
+				for _, s := range snaps {
+					s.Release()
+				}
+			}
+		}
+	}()
+	t0 := time.Now()
+	go func() { srcDone <- src.Run(ctx) }()
+	deadline := time.Now().Add(2 * time.Minute)
+	for met.Accepted.Load() < e2eSamples {
+		if time.Now().After(deadline) {
+			b.Fatalf("pipeline: accepted %d of %d", met.Accepted.Load(), e2eSamples)
+		}
+		time.Sleep(200 * time.Microsecond)
+	}
+	el := time.Since(t0)
+	// Every message must also be acknowledged (after the next tick and
+	// ack flush); not part of the timed throughput.
+	for met.Acked.Load() < e2eMsgs {
+		if time.Now().After(deadline) {
+			b.Fatalf("pipeline: acked %d of %d messages", met.Acked.Load(), e2eMsgs)
+		}
+		time.Sleep(time.Millisecond)
+	}
+	cancel()
+	<-srcDone
+	<-engDone
+	<-relDone
+	return float64(e2eSamples) / el.Seconds(), met
+}
+
+// BenchmarkEndToEndJetStream compares, in the same run and on the same
+// stored stream (200 000 line-protocol samples, 1, 10 or 100 per message),
+// the full pipeline against a bare nats.go subscriber that only counts
+// messages. Run with -benchtime=Nx; the rates are medians over N runs.
+func BenchmarkEndToEndJetStream(b *testing.B) {
+	ns := startNATS(b, baseOpts(b, true))
+	nc, err := nats.Connect(ns.url())
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer nc.Close()
+	js, err := jetstream.New(nc)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for _, perMsg := range []int{1, 10, 100} {
+		b.Run(fmt.Sprintf("samples_per_msg=%d", perMsg), func(b *testing.B) {
+			e2eFill(b, js, time.Now(), perMsg)
+			var bare, ours []float64
+			b.ResetTimer()
+			for n := 0; n < b.N; n++ {
+				bare = append(bare, bareRun(b, js, n, perMsg))
+				r, met := pipelineRun(b, ns.url(), n, perMsg)
+				ours = append(ours, r)
+				if d := met.QueueDropped.Load(); d != 0 {
+					b.Fatalf("jetstream mode dropped %d batches", d)
+				}
+			}
+			b.StopTimer()
+			mb, mo := median(bare), median(ours)
+			b.ReportMetric(mb, "bare_samples/s")
+			b.ReportMetric(mo, "pipeline_samples/s")
+			b.ReportMetric(100*mo/mb, "pipeline_%_of_bare")
+		})
+	}
+}
+
+func median(v []float64) float64 {
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	if len(s) == 0 {
+		return 0
+	}
+	if len(s)%2 == 1 {
+		return s[len(s)/2]
+	}
+	return (s[len(s)/2-1] + s[len(s)/2]) / 2
+}
