@@ -45,12 +45,16 @@ type Options struct {
 	// LoadChangeAfter is when the load drops from 100 % to 70 % (ramp of
 	// LoadRamp), and LoadRestoreAfter when it returns. Zero disables.
 	LoadChangeAfter, LoadRestoreAfter, LoadRamp time.Duration
+	// LoadDrop is the fraction of load lost in the load change (default 0.3).
+	LoadDrop float64
 	// DegradeAfter is when fouling starts on the air compressor and erosion
 	// on the HP turbine; DegradeRate is the air compressor's loss of
 	// isentropic efficiency per minute, as a fraction (0.01 = one point per
 	// minute); the HP turbine loses a tenth of that.
 	DegradeAfter time.Duration
 	DegradeRate  float64
+	// DegradeMax caps the loss of efficiency (fraction; 0: no cap).
+	DegradeMax float64
 	// StuckSensorAfter makes the gas compressor's discharge thermocouple
 	// freeze for StuckFor. Zero disables.
 	StuckSensorAfter, StuckFor time.Duration
@@ -61,14 +65,16 @@ type Options struct {
 	Noiseless bool
 }
 
-// DemoOptions returns the settings used by `exergywatch demo`: a load
-// change after 60 s, degradation from the start, a stuck sensor after 90 s.
+// DemoOptions returns the settings used by `exergywatch demo`: fouling of
+// the air compressor from t+10 s at 2 points per minute (capped at 6
+// points), a stuck thermocouple at t+60 s for 2 minutes, a load drop to
+// 75 % at t+120 s and back at t+240 s.
 func DemoOptions(start time.Time) Options {
 	return Options{
 		Seed: 7, Start: start,
-		LoadChangeAfter: 60 * time.Second, LoadRestoreAfter: 150 * time.Second, LoadRamp: 20 * time.Second,
-		DegradeAfter: 20 * time.Second, DegradeRate: 0.012,
-		StuckSensorAfter: 90 * time.Second, StuckFor: 120 * time.Second,
+		LoadChangeAfter: 120 * time.Second, LoadRestoreAfter: 240 * time.Second, LoadRamp: 20 * time.Second, LoadDrop: 0.25,
+		DegradeAfter: 10 * time.Second, DegradeRate: 0.02, DegradeMax: 0.06,
+		StuckSensorAfter: 60 * time.Second, StuckFor: 120 * time.Second,
 		SpikeProbability: 0.01,
 	}
 }
@@ -185,7 +191,11 @@ func (p *Plant) Load(e time.Duration) float64 {
 	if o.LoadRestoreAfter > 0 {
 		up = math.Min(math.Max((e-o.LoadRestoreAfter).Seconds()/ramp, 0), 1)
 	}
-	return 1 - 0.3*down + 0.3*up
+	drop := o.LoadDrop
+	if drop == 0 {
+		drop = 0.3
+	}
+	return 1 - drop*down + drop*up
 }
 
 // TrueEfficiency is the simulated isentropic efficiency of machine m at
@@ -205,7 +215,11 @@ func (p *Plant) eta(m *machine, e time.Duration) float64 {
 	// a plausible curve, no source).
 	eta := m.eta0 - 0.05*(1-load)*(1-load)
 	if m.degrades > 0 && p.opts.DegradeRate > 0 && e > p.opts.DegradeAfter {
-		eta -= m.degrades * p.opts.DegradeRate * (e - p.opts.DegradeAfter).Minutes()
+		loss := m.degrades * p.opts.DegradeRate * (e - p.opts.DegradeAfter).Minutes()
+		if p.opts.DegradeMax > 0 {
+			loss = math.Min(loss, p.opts.DegradeMax)
+		}
+		eta -= loss
 	}
 	return math.Max(eta, 0.3)
 }

@@ -83,8 +83,8 @@ func TestLoadProfileAndFaults(t *testing.T) {
 	if l := p.Load(0); l != 1 {
 		t.Errorf("load at start %v", l)
 	}
-	if l := p.Load(o.LoadChangeAfter + o.LoadRamp); math.Abs(l-0.7) > 1e-12 {
-		t.Errorf("load after the change %v, want 0.7", l)
+	if l := p.Load(o.LoadChangeAfter + o.LoadRamp); math.Abs(l-0.75) > 1e-12 {
+		t.Errorf("load after the change %v, want 0.75", l)
 	}
 	// The stuck thermocouple repeats its value exactly.
 	var vals []float64

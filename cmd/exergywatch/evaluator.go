@@ -1,0 +1,387 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"slices"
+	"sort"
+	"time"
+
+	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/compute/alert"
+	"github.com/exergywatch/exergywatch/compute/machine"
+	"github.com/exergywatch/exergywatch/compute/mode"
+	"github.com/exergywatch/exergywatch/compute/steady"
+	"github.com/exergywatch/exergywatch/compute/trend"
+	"github.com/exergywatch/exergywatch/config"
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/align"
+)
+
+// Reason codes the evaluator adds to records.
+const (
+	reasonNotRunning = "not_running"
+	reasonStarting   = "starting"
+	reasonTransient  = "transient"
+	reasonWithheld   = "withheld_transient"
+)
+
+// evaluator turns the snapshots of one machine into records and alert
+// events: operating mode, steady-state gating, the machine model, cost,
+// alert rules and trends. It is used by one goroutine at a time.
+type evaluator struct {
+	id, site  string
+	kind      machine.Kind
+	spec      *machine.Spec
+	heatFlowW float64
+	withhold  bool
+	price     float64 // money per MWh of lost work; 0: no cost series
+	baseline  map[string]float64
+
+	mode    mode.Detector
+	steady  *steady.Detector
+	signals []string
+	rules   []*alert.Machine
+	trends  map[string]*trend.EWMA
+	tau     time.Duration
+	daily   *trend.Daily
+
+	// status view
+	last       compute.Record
+	lastMode   mode.Mode
+	lastSteady bool
+	lastR      map[string]float64
+	lastGood   compute.Record
+	hasGood    bool
+	inputs     map[string]float64
+	inputWhy   map[string]string
+}
+
+func newEvaluator(cfg *config.Config, m *config.Machine, keys map[string]bool) (*evaluator, error) {
+	spec, err := m.Spec(cfg.Site, keys)
+	if err != nil {
+		return nil, fmt.Errorf("machine %s: %w", m.ID, err)
+	}
+	e := &evaluator{id: m.ID, site: cfg.Site.Name, kind: spec.Kind, spec: spec, heatFlowW: m.HeatFlowW(),
+		withhold: cfg.Evaluation.Transient == "withhold", price: cfg.Site.EnergyPrice, baseline: m.Baseline,
+		trends: map[string]*trend.EWMA{}, tau: cfg.Evaluation.TrendTimeConstant.D()}
+	for _, c := range m.Running {
+		above, below, err := c.Limits()
+		if err != nil {
+			return nil, fmt.Errorf("machine %s: running condition %s: %w", m.ID, c.Signal, err)
+		}
+		e.mode.Conditions = append(e.mode.Conditions, mode.Condition{Signal: c.Signal, Above: above, Below: below})
+	}
+	e.mode.StartupTime = m.StartupTime.D()
+	e.signals = m.SteadySignals(keys)
+	if len(e.signals) > 0 {
+		if e.steady, err = steady.NewDetector(m.Steady.SteadyConfig(), e.signals); err != nil {
+			return nil, fmt.Errorf("machine %s: %w", m.ID, err)
+		}
+	}
+	for _, a := range m.Alerts {
+		r := alert.Rule{Name: a.Name, Machine: m.ID, Class: compute.AlertClass(a.Class), Figure: a.Figure,
+			Kind: alert.Kind(a.Kind), Hysteresis: a.Hysteresis, RateWindow: a.RateWindow.D(),
+			PendingFor: a.PendingFor.D(), ClearFor: a.ClearFor.D(), Advice: a.Advice, Baseline: m.Baseline[a.Figure]}
+		if a.Below != nil {
+			r.Below, r.Limit = true, *a.Below
+		} else if a.Above != nil {
+			r.Limit = *a.Above
+		}
+		am, err := alert.New(cfg.Site.Name, r)
+		if err != nil {
+			return nil, fmt.Errorf("machine %s: %w", m.ID, err)
+		}
+		e.rules = append(e.rules, am)
+	}
+	if e.daily, err = trend.NewDaily(cfg.Site.Timezone); err != nil {
+		return nil, err
+	}
+	return e, nil
+}
+
+// inputs maps a snapshot onto the model inputs. Bad values are left out
+// (the model then fails with a clear reason); uncertain and stale values
+// are named so the result is at best uncertain.
+func (e *evaluator) inputsFrom(s *align.Snapshot) (machine.Inputs, map[string]float64, map[string]ingest.Reasons) {
+	var in machine.Inputs
+	vals := map[string]float64{}
+	reasons := map[string]ingest.Reasons{}
+	e.inputWhy = map[string]string{}
+	for k, v := range s.Values {
+		key := k.Quantity + "@" + k.Port
+		reasons[key] = v.Reasons
+		if v.Quality == ingest.Bad || math.IsNaN(v.SI) || math.IsInf(v.SI, 0) {
+			e.inputWhy[key] = "bad: " + v.Reasons.String()
+			continue
+		}
+		vals[key] = v.SI
+		if v.Quality == ingest.Uncertain || v.Reasons != 0 {
+			e.inputWhy[key] = v.Reasons.String()
+		}
+	}
+	name := map[string]string{"p@inlet": "p1", "T@inlet": "T1", "h@inlet": "h1", "x@inlet": "x1",
+		"p@outlet": "p2", "T@outlet": "T2", "x@outlet": "x2", "flow@inlet": "flow", "flow@outlet": "flow",
+		"power@shaft": "power", "power@generator": "power", "power@motor": "power"}
+	set := func(key string, dst *float64) {
+		if v, ok := vals[key]; ok {
+			*dst = v
+			if r := reasons[key]; r.Has(ingest.ReasonStale) {
+				in.Stale = append(in.Stale, name[key])
+			} else if why := e.inputWhy[key]; why != "" {
+				in.Doubtful = append(in.Doubtful, name[key])
+			}
+		}
+	}
+	set("p@inlet", &in.P1)
+	set("T@inlet", &in.T1)
+	set("h@inlet", &in.H1)
+	set("x@inlet", &in.X1)
+	set("p@outlet", &in.P2)
+	set("T@outlet", &in.T2)
+	set("x@outlet", &in.X2)
+	set("flow@outlet", &in.MassFlow)
+	set("flow@inlet", &in.MassFlow)
+	set("power@shaft", &in.ShaftPower)
+	set("power@generator", &in.ElectricalPower)
+	set("power@motor", &in.ElectricalPower)
+	in.HeatFlow = e.heatFlowW
+	slices.Sort(in.Stale)
+	in.Stale = slices.Compact(in.Stale)
+	slices.Sort(in.Doubtful)
+	in.Doubtful = slices.Compact(in.Doubtful)
+	return in, vals, reasons
+}
+
+// evaluate runs one tick.
+func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event) {
+	now := s.At
+	in, vals, reasons := e.inputsFrom(s)
+	e.inputs = vals
+
+	md, why := e.mode.Update(now, vals)
+	e.lastMode = md
+	steadyNow := false
+	if e.steady != nil {
+		sv := map[string]float64{}
+		for _, k := range e.signals {
+			if v, ok := vals[k]; ok {
+				sv[k] = v
+			}
+		}
+		if md == mode.Running {
+			v := e.steady.Update(now, sv)
+			steadyNow, e.lastR = v.Steady, v.R
+		}
+	} else {
+		steadyNow = md == mode.Running
+	}
+	e.lastSteady = steadyNow
+
+	var rec compute.Record
+	if md != mode.Running {
+		code := reasonNotRunning
+		if md == mode.Starting {
+			code = reasonStarting
+		}
+		rec = compute.Record{Time: now.UTC(), Site: e.site, Machine: e.id, MachineKind: e.kind.String(),
+			Quality: compute.QualityBad, Reasons: []string{code}}
+		if why != "" {
+			rec.Reasons = append(rec.Reasons, "detail:"+why)
+		}
+	} else {
+		res, err := machine.Evaluate(e.spec, &in)
+		if err != nil {
+			rec = machine.BadRecord(now, e.site, e.id, e.kind, err)
+		} else {
+			rec = res.Record(now, e.site, e.id)
+			e.addCost(&rec)
+		}
+		if !steadyNow && rec.Quality != compute.QualityBad {
+			rec.Reasons = append(rec.Reasons, reasonTransient)
+			rec.Quality = compute.Worse(rec.Quality, compute.QualityTransient)
+			for i := range rec.Figures {
+				f := &rec.Figures[i]
+				if f.Quality != compute.QualityBad {
+					f.Quality = compute.Worse(f.Quality, compute.QualityTransient)
+				}
+			}
+			if e.withhold {
+				rec.Reasons = append(rec.Reasons, reasonWithheld)
+				rec.Figures = nil
+			}
+		}
+	}
+	// Input doubts travel with the record (as reason codes "input:<key>:<reason>").
+	var inKeys []string
+	for k := range reasons {
+		inKeys = append(inKeys, k)
+	}
+	sort.Strings(inKeys)
+	for _, k := range inKeys {
+		for _, r := range reasons[k].List() {
+			rec.Reasons = append(rec.Reasons, "input:"+k+":"+r.String())
+		}
+	}
+
+	events := e.observeAlerts(now, &rec, reasons)
+	e.updateTrends(now, &rec, steadyNow)
+	e.last = rec
+	if rec.Quality == compute.QualityGood || rec.Quality == compute.QualityUncertain {
+		e.lastGood, e.hasGood = rec, true
+	}
+	return rec, events
+}
+
+func (e *evaluator) addCost(rec *compute.Record) {
+	if e.price <= 0 {
+		return
+	}
+	for _, f := range rec.Figures {
+		if f.Name != machine.LostWorkRate.RecordName() {
+			continue
+		}
+		c := compute.Figure{Name: config.LostWorkCostFigure, Quality: f.Quality, Reasons: f.Reasons}
+		if f.Quality == compute.QualityBad {
+			c.Value = math.NaN()
+		} else {
+			// W -> MW, times money per MWh, gives money per hour.
+			c.Value = f.Value / 1e6 * e.price
+			if f.HasU95 {
+				c.U95, c.HasU95 = f.U95/1e6*e.price, true
+			}
+		}
+		rec.Figures = append(rec.Figures, c)
+		return
+	}
+}
+
+func (e *evaluator) observeAlerts(now time.Time, rec *compute.Record, reasons map[string]ingest.Reasons) []compute.Event {
+	var out []compute.Event
+	for _, r := range e.rules {
+		var ev *compute.Event
+		var err error
+		if r.Rule.Class == compute.AlertDataQuality {
+			v := 0.0
+			for _, rs := range reasons {
+				for _, x := range rs.List() {
+					if x.String() == r.Rule.Figure {
+						v = 1
+					}
+				}
+			}
+			ev, err = r.Observe(now, v, 0, compute.QualityGood)
+		} else {
+			for _, f := range rec.Figures {
+				if f.Name == r.Rule.Figure {
+					ev, err = r.Observe(now, f.Value, f.U95, f.Quality)
+					break
+				}
+			}
+		}
+		if err == nil && ev != nil {
+			out = append(out, *ev)
+		}
+	}
+	return out
+}
+
+func (e *evaluator) updateTrends(now time.Time, rec *compute.Record, steadyNow bool) {
+	for _, f := range rec.Figures {
+		if f.Quality != compute.QualityGood && f.Quality != compute.QualityUncertain {
+			continue
+		}
+		t := e.trends[f.Name]
+		if t == nil {
+			t = &trend.EWMA{Tau: e.tau}
+			e.trends[f.Name] = t
+		}
+		_ = t.Add(now, f.Value)
+	}
+	eta, ok := figureValue(rec, machine.IsentropicEfficiency.RecordName())
+	_, _ = e.daily.Add(now, eta, ok && steadyNow)
+}
+
+func figureValue(rec *compute.Record, name string) (float64, bool) {
+	for _, f := range rec.Figures {
+		if f.Name == name && (f.Quality == compute.QualityGood || f.Quality == compute.QualityUncertain) {
+			return f.Value, true
+		}
+	}
+	return 0, false
+}
+
+// persisted is what survives a restart.
+type persisted struct {
+	Mode     mode.State                    `json:"mode"`
+	Steady   map[string]steady.FilterState `json:"steady,omitempty"`
+	Alerts   map[string]alert.State        `json:"alerts,omitempty"`
+	Trends   map[string]*trend.EWMA        `json:"trends,omitempty"`
+	LastGood *compute.Record               `json:"last_good,omitempty"`
+}
+
+func (e *evaluator) marshalState() ([]byte, error) {
+	p := persisted{Mode: e.mode.S, Alerts: map[string]alert.State{}, Trends: e.trends}
+	if e.steady != nil {
+		p.Steady = e.steady.States()
+	}
+	for _, r := range e.rules {
+		p.Alerts[r.Rule.Name] = r.S
+	}
+	if e.hasGood {
+		g := e.lastGood
+		p.LastGood = &g
+	}
+	return json.Marshal(p)
+}
+
+func (e *evaluator) restoreState(b []byte) error {
+	var p persisted
+	if err := json.Unmarshal(b, &p); err != nil {
+		return err
+	}
+	e.mode.S = p.Mode
+	if e.steady != nil && p.Steady != nil {
+		e.steady.Restore(p.Steady)
+	}
+	for _, r := range e.rules {
+		if s, ok := p.Alerts[r.Rule.Name]; ok {
+			r.S = s
+		}
+	}
+	for k, t := range p.Trends {
+		if t != nil {
+			t.Tau = e.tau
+			e.trends[k] = t
+		}
+	}
+	if p.LastGood != nil {
+		e.lastGood, e.hasGood = *p.LastGood, true
+	}
+	return nil
+}
+
+// activeAlerts lists the rules that are pending or firing.
+func (e *evaluator) activeAlerts() []alertView {
+	var out []alertView
+	for _, r := range e.rules {
+		if r.S.State == compute.AlertPending || r.S.State == compute.AlertFiring {
+			out = append(out, alertView{Machine: e.id, Rule: r.Rule.Name, Class: string(r.Rule.Class), Figure: r.Rule.Figure,
+				State: r.S.State.String(), Since: r.S.Since, Value: r.S.LastValue, Limit: r.Rule.Limit, U95: r.S.LastU95})
+		}
+	}
+	return out
+}
+
+type alertView struct {
+	Machine string    `json:"machine"`
+	Rule    string    `json:"rule"`
+	Class   string    `json:"class"`
+	Figure  string    `json:"figure"`
+	State   string    `json:"state"`
+	Since   time.Time `json:"since"`
+	Value   float64   `json:"value"`
+	Limit   float64   `json:"limit"`
+	U95     float64   `json:"u95"`
+}

@@ -1,0 +1,372 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"path/filepath"
+	"sort"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+
+	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/config"
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/align"
+	"github.com/exergywatch/exergywatch/ingest/natsrc"
+	"github.com/exergywatch/exergywatch/ingest/opcuasrc"
+	"github.com/exergywatch/exergywatch/ingest/tagmap"
+	"github.com/exergywatch/exergywatch/sinks"
+	"github.com/exergywatch/exergywatch/sinks/influx"
+	"github.com/exergywatch/exergywatch/sinks/natsout"
+	"github.com/exergywatch/exergywatch/sinks/store"
+)
+
+// Sink is what the pipeline writes to (the contract is documented on
+// sinks.Sink, which every sink package asserts at compile time).
+type Sink interface {
+	WriteRecord(ctx context.Context, r compute.Record) error
+	WriteEvent(ctx context.Context, e compute.Event) error
+	Close(ctx context.Context) error
+}
+
+var _ Sink = (*sinks.Multi)(nil)
+
+// source is a running input.
+type source interface {
+	Run(ctx context.Context) error
+}
+
+// pipelineOptions are set by the command that builds the pipeline.
+type pipelineOptions struct {
+	log   *slog.Logger
+	clock ingest.Clock
+	// onRecord and onEvent, when set, see every record and event (demo
+	// console, tests).
+	onRecord func(compute.Record)
+	onEvent  func(compute.Event)
+	// stateFlush is how often evaluator state is persisted (default 10 s).
+	stateFlush time.Duration
+}
+
+// pipeline is one configuration running: sources -> alignment ->
+// evaluators -> sinks. Every goroutine it starts is owned by run and
+// stopped when run's context ends.
+type pipeline struct {
+	cfg     *config.Config
+	opt     pipelineOptions
+	log     *slog.Logger
+	reg     *prometheus.Registry
+	metrics *ingest.Metrics
+	queue   *ingest.Queue
+	engine  *align.Engine
+	sources []namedSource
+	evals   map[string]*evaluator
+	order   []string
+	multi   *sinks.Multi
+	state   *store.Store
+	history *store.Store // the store sink, when configured (status history)
+
+	mu         sync.Mutex // guards evaluator state read by the status API
+	evaluated  atomic.Uint64
+	events     atomic.Uint64
+	lastTick   atomic.Int64
+	sinkErrors atomic.Uint64
+	ready      atomic.Bool
+}
+
+type namedSource struct {
+	name string
+	src  source
+}
+
+// buildPipeline constructs everything a configuration needs without
+// starting any goroutine; on error nothing is left open.
+func buildPipeline(cfg *config.Config, opt pipelineOptions) (p *pipeline, err error) {
+	if opt.log == nil {
+		opt.log = slog.Default()
+	}
+	if opt.clock == nil {
+		opt.clock = ingest.SystemClock{}
+	}
+	if opt.stateFlush == 0 {
+		opt.stateFlush = 10 * time.Second
+	}
+	p = &pipeline{cfg: cfg, opt: opt, log: opt.log, reg: prometheus.NewRegistry(), metrics: &ingest.Metrics{}, evals: map[string]*evaluator{}}
+	var closers []func()
+	defer func() {
+		if err != nil {
+			for i := len(closers) - 1; i >= 0; i-- {
+				closers[i]()
+			}
+		}
+	}()
+	if err := cfg.ResolveSecrets(); err != nil {
+		return nil, err
+	}
+	mapper, err := tagmap.Compile(cfg.TagMap)
+	if err != nil {
+		return nil, err
+	}
+	p.engine, err = align.New(cfg.Alignment, mapper, p.metrics, opt.log.With("component", "align"))
+	if err != nil {
+		return nil, err
+	}
+	p.queue = ingest.NewQueue(4096, p.metrics)
+	for _, s := range cfg.Sources {
+		lg := opt.log.With("component", "source", "source", s.Name)
+		var src source
+		switch s.Kind {
+		case "nats":
+			src, err = natsrc.New(*s.NATS, p.queue, p.metrics, lg, opt.clock)
+		case "opcua":
+			src, err = opcuasrc.New(*s.OPCUA, p.queue, p.metrics, lg, opt.clock)
+		default:
+			err = fmt.Errorf("unknown source kind %q", s.Kind)
+		}
+		if err != nil {
+			return nil, fmt.Errorf("source %s: %w", s.Name, err)
+		}
+		p.sources = append(p.sources, namedSource{s.Name, src})
+	}
+	keys := cfg.Keys()
+	for i := range cfg.Machines {
+		m := &cfg.Machines[i]
+		e, err := newEvaluator(cfg, m, keys[m.ID])
+		if err != nil {
+			return nil, err
+		}
+		p.evals[m.ID] = e
+		p.order = append(p.order, m.ID)
+	}
+	sort.Strings(p.order)
+
+	statePath, _ := filepath.Abs(cfg.State.Path)
+	var named []sinks.Named
+	for _, s := range cfg.Sinks {
+		lg := opt.log.With("component", "sink", "sink", s.Name)
+		var sk sinks.Sink
+		switch s.Kind {
+		case "influxdb":
+			var is *influx.Sink
+			is, err = influx.New(s.Name, *s.InfluxDB, lg)
+			sk = is
+		case "nats":
+			var ns *natsout.Sink
+			ns, err = natsout.New(s.Name, *s.NATS, lg)
+			sk = ns
+		case "store":
+			if path, _ := filepath.Abs(s.Store.Path); path == statePath {
+				err = fmt.Errorf("sink %s uses the state file %s; give the store sink its own path", s.Name, s.Store.Path)
+				break
+			}
+			var st *store.Store
+			st, err = store.Open(s.Name, *s.Store, lg)
+			if err == nil {
+				p.history = st
+			}
+			sk = st
+		default:
+			err = fmt.Errorf("unknown sink kind %q", s.Kind)
+		}
+		if err != nil {
+			return nil, fmt.Errorf("sink %s: %w", s.Name, err)
+		}
+		closeSink := sk
+		closers = append(closers, func() {
+			ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+			defer cancel()
+			_ = closeSink.Close(ctx)
+		})
+		named = append(named, sinks.Named{Name: s.Name, Sink: sk, QueueLen: s.QueueLen})
+	}
+	p.multi, err = sinks.NewMulti(cfg.Fanout, opt.log.With("component", "fanout"), named...)
+	if err != nil {
+		return nil, err
+	}
+	closers = append(closers, func() {
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		_ = p.multi.Close(ctx)
+	})
+	p.state, err = store.Open("state", store.Config{Path: cfg.State.Path, RetentionHours: 24 * 365}, opt.log.With("component", "state"))
+	if err != nil {
+		return nil, fmt.Errorf("state file %s: %w", cfg.State.Path, err)
+	}
+	closers = append(closers, func() { _ = p.state.Close(context.Background()) })
+	for id, e := range p.evals {
+		b, ok, err := p.state.GetState("machine", id)
+		if err != nil {
+			return nil, fmt.Errorf("state of %s: %w", id, err)
+		}
+		if ok {
+			if err := e.restoreState(b); err != nil {
+				p.log.Warn("saved state not restored; starting fresh", "machine", id, "err", err)
+			}
+		}
+	}
+	if err := p.metrics.Register(p.reg); err != nil {
+		return nil, err
+	}
+	if err := p.reg.Register(sinks.NewCollector(p.multi.Stats)); err != nil {
+		return nil, err
+	}
+	p.registerMetrics()
+	return p, nil
+}
+
+func (p *pipeline) registerMetrics() {
+	p.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Name: "exergywatch_compute_evaluations_total",
+		Help: "Machine evaluations run."}, func() float64 { return float64(p.evaluated.Load()) }))
+	p.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Name: "exergywatch_compute_alert_events_total",
+		Help: "Alert transitions raised."}, func() float64 { return float64(p.events.Load()) }))
+	p.reg.MustRegister(prometheus.NewGaugeFunc(prometheus.GaugeOpts{Name: "exergywatch_compute_last_tick_timestamp_seconds",
+		Help: "Time of the last evaluation tick."}, func() float64 { return float64(p.lastTick.Load()) / 1e9 }))
+	p.reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{Name: "exergywatch_sinks_write_errors_total",
+		Help: "Records or events the fan-out could not queue for at least one sink."}, func() float64 { return float64(p.sinkErrors.Load()) }))
+}
+
+// run starts everything and blocks until ctx ends, then drains: sources
+// stop, the last snapshots are evaluated, state is saved and the sinks are
+// flushed and closed.
+func (p *pipeline) run(ctx context.Context) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	var wg sync.WaitGroup
+	errc := make(chan error, len(p.sources)+2)
+	for _, s := range p.sources {
+		wg.Add(1)
+		go func(s namedSource) {
+			defer wg.Done()
+			if err := s.src.Run(ctx); err != nil && !errors.Is(err, context.Canceled) {
+				p.log.Error("source stopped", "source", s.name, "err", err)
+				errc <- fmt.Errorf("source %s: %w", s.name, err)
+			}
+		}(s)
+	}
+	ticks := make(chan time.Time)
+	snaps := make(chan []*align.Snapshot, 4)
+	wg.Add(1)
+	go func() { // ticker: one tick per evaluation interval, on interval boundaries
+		defer wg.Done()
+		defer close(ticks)
+		iv := p.cfg.Evaluation.Interval.D()
+		t := time.NewTicker(iv)
+		defer t.Stop()
+		for {
+			select {
+			case <-ctx.Done():
+				return
+			case <-t.C:
+				select {
+				case ticks <- p.opt.clock.Now().Truncate(iv):
+				case <-ctx.Done():
+					return
+				}
+			}
+		}
+	}()
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		defer close(snaps)
+		if err := p.engine.Run(ctx, p.queue, ticks, p.opt.clock, snaps); err != nil && !errors.Is(err, context.Canceled) {
+			errc <- fmt.Errorf("alignment: %w", err)
+		}
+	}()
+	done := make(chan struct{})
+	go func() { // evaluation loop: owned here, ends when snaps closes
+		defer close(done)
+		lastSave := time.Now()
+		for batch := range snaps {
+			p.evaluateBatch(ctx, batch)
+			if time.Since(lastSave) >= p.opt.stateFlush {
+				p.saveState()
+				lastSave = time.Now()
+			}
+		}
+	}()
+	p.ready.Store(true)
+	var runErr error
+	select {
+	case <-ctx.Done():
+	case runErr = <-errc:
+		cancel()
+	}
+	p.ready.Store(false)
+	wg.Wait()
+	<-done
+	p.saveState()
+	return errors.Join(runErr, p.close())
+}
+
+// evaluateBatch evaluates the snapshots of one tick and writes the results.
+func (p *pipeline) evaluateBatch(ctx context.Context, batch []*align.Snapshot) {
+	for _, s := range batch {
+		e, ok := p.evals[s.Machine]
+		if !ok {
+			s.Release()
+			continue
+		}
+		p.mu.Lock()
+		rec, events := e.evaluate(s)
+		p.mu.Unlock()
+		p.evaluated.Add(1)
+		p.lastTick.Store(s.At.UnixNano())
+		if err := p.multi.WriteRecord(context.WithoutCancel(ctx), rec); err != nil {
+			p.sinkErrors.Add(1)
+		}
+		for _, ev := range events {
+			p.events.Add(1)
+			lvl := slog.LevelInfo
+			if ev.To == compute.AlertFiring {
+				lvl = slog.LevelWarn
+			}
+			p.log.Log(ctx, lvl, "alert "+ev.To.String(), "machine", ev.Machine, "rule", ev.Rule, "class", string(ev.Class),
+				"figure", ev.Figure, "value", ev.Value, "limit", ev.Limit, "reason", ev.Reason)
+			if err := p.multi.WriteEvent(context.WithoutCancel(ctx), ev); err != nil {
+				p.sinkErrors.Add(1)
+			}
+			if err := p.state.WriteEvent(context.WithoutCancel(ctx), ev); err != nil {
+				p.log.Warn("alert event not stored", "err", err)
+			}
+			if p.opt.onEvent != nil {
+				p.opt.onEvent(ev)
+			}
+		}
+		if p.opt.onRecord != nil {
+			p.opt.onRecord(rec)
+		}
+		// The record and its events are in the sinks' queues (or counted as
+		// dropped): the samples behind it may now be acknowledged.
+		s.Release()
+	}
+}
+
+func (p *pipeline) saveState() {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	for id, e := range p.evals {
+		b, err := e.marshalState()
+		if err == nil {
+			err = p.state.PutState("machine", id, b)
+		}
+		if err != nil {
+			p.log.Warn("state not saved", "machine", id, "err", err)
+		}
+	}
+}
+
+func (p *pipeline) close() error {
+	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
+	defer cancel()
+	err := p.multi.Close(ctx)
+	if e := p.state.Close(ctx); e != nil {
+		err = errors.Join(err, e)
+	}
+	return err
+}
