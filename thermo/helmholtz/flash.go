@@ -15,9 +15,12 @@ var (
 )
 
 // Flash returns the state fixed by (a, b). Supported pairs: PT, PH, PS, PX,
-// TX and HS. Pseudo-pure air has no two-phase model: PX, TX and states
-// between its dew and bubble lines return errors wrapping ErrUnsupported or
-// ErrPhase.
+// TX and HS. A (p,T) exactly on the saturation line does not fix the state
+// and returns ErrPhase (use PX or TX). Pseudo-pure air has no two-phase
+// model: PX, TX and states between its dew and bubble lines return errors
+// wrapping ErrUnsupported or ErrPhase. Within about 1e-5 (relative) of the
+// critical point the Maxwell solve, and so SatT, SatP, PX, TX and the (p,h),
+// (p,s) flashes at p just below pc, may return ErrNoConvergence.
 func (f *Fluid) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 	names := pairArgNames(pair)
 	if err := thermo.CheckFinite(f.name, names[:], a, b); err != nil {
