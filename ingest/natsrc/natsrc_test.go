@@ -209,7 +209,8 @@ func noLoss(t *testing.T, policy string) {
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(16, met)
 	src, err := New(Config{URLs: []string{ns.url()}, Subjects: []string{"plant.>"}, Mode: ModeJetStream, Stream: "PLANT", Durable: "exergywatch",
-		AckWait: 2 * time.Second, FetchBatch: 32, ReconnectWait: 20 * time.Millisecond, AckPolicy: policy, AckFlush: 20 * time.Millisecond}, q, met, quietLog(), nil)
+		AckWait: 2 * time.Second, FetchBatch: 32, ReconnectWait: 20 * time.Millisecond, AckPolicy: policy, AckFlush: 20 * time.Millisecond,
+		BatchSamples: 6}, q, met, quietLog(), nil)
 	if err != nil {
 		t.Fatal(err)
 	}
