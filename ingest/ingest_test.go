@@ -1,0 +1,130 @@
+package ingest_test
+
+import (
+	"bytes"
+	"context"
+	"log/slog"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/prometheus/client_golang/prometheus"
+	"go.uber.org/goleak"
+)
+
+func TestMain(m *testing.M) { goleak.VerifyTestMain(m) }
+
+func TestQualityFromStatus(t *testing.T) {
+	// OPC UA Part 4, 7.39 StatusCode: severity bits 31..30 = 00 good,
+	// 01 uncertain, 10 bad (11 reserved, treated as bad).
+	for _, tc := range []struct {
+		code uint32
+		want ingest.Quality
+	}{{0, ingest.Good}, {0x00A20000, ingest.Good}, {0x40900000, ingest.Uncertain}, {0x80310000, ingest.Bad}, {0xC0000000, ingest.Bad}} {
+		if got := ingest.QualityFromStatus(tc.code); got != tc.want {
+			t.Errorf("0x%08X: got %v want %v", tc.code, got, tc.want)
+		}
+	}
+}
+
+func TestAckRunsOnceAfterAllSamples(t *testing.T) {
+	n := 0
+	a := ingest.NewAck(3, func() { n++ })
+	a.Done()
+	a.Done()
+	if n != 0 || a.Pending() != 1 {
+		t.Fatalf("acked early: n=%d pending=%d", n, a.Pending())
+	}
+	a.Done()
+	a.Done() // extra call ignored
+	if n != 1 {
+		t.Fatalf("ack ran %d times", n)
+	}
+	var nilAck *ingest.Ack
+	nilAck.Done() // no panic
+	if ingest.NewAck(0, func() { n++ }) != nil || n != 2 {
+		t.Fatal("NewAck(0) must run fn at once and return nil")
+	}
+}
+
+func TestQueueOfferDropsAndCounts(t *testing.T) {
+	met := &ingest.Metrics{}
+	q := ingest.NewQueue(1, met)
+	acked := 0
+	a := ingest.NewAck(2, func() { acked++ })
+	if !q.Offer([]ingest.Sample{{Tag: "a"}}) {
+		t.Fatal("first offer refused")
+	}
+	if q.Offer([]ingest.Sample{{Tag: "b", Ack: a}, {Tag: "c", Ack: a}}) {
+		t.Fatal("offer into a full queue accepted")
+	}
+	if met.QueueDropped.Load() != 1 || met.Reason(ingest.ReasonQueueFull) != 2 || acked != 1 || met.QueueDepth.Load() != 1 {
+		t.Fatalf("dropped %d, queue_full %d, acked %d, depth %d", met.QueueDropped.Load(), met.Reason(ingest.ReasonQueueFull), acked, met.QueueDepth.Load())
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Millisecond)
+	defer cancel()
+	if err := q.Put(ctx, nil); err == nil {
+		t.Fatal("Put into a full queue must block until ctx ends")
+	}
+	<-q.C()
+	q.Took()
+	if met.QueueDepth.Load() != 0 {
+		t.Fatal("depth not decremented")
+	}
+}
+
+func TestLogLimiterOncePerKeyPerPeriod(t *testing.T) {
+	var buf bytes.Buffer
+	l := ingest.NewLogLimiter(slog.New(slog.NewTextHandler(&buf, nil)), time.Minute)
+	t0 := time.Date(2026, 12, 1, 0, 0, 0, 0, time.UTC)
+	got := []bool{
+		l.Warn(t0, "tagA", "decode error"),
+		l.Warn(t0.Add(30*time.Second), "tagA", "decode error"),
+		l.Warn(t0.Add(30*time.Second), "tagB", "decode error"),
+		l.Warn(t0.Add(61*time.Second), "tagA", "decode error"),
+	}
+	want := []bool{true, false, true, true}
+	for i := range got {
+		if got[i] != want[i] {
+			t.Fatalf("call %d logged=%v want %v", i, got[i], want[i])
+		}
+	}
+	if !strings.Contains(buf.String(), "suppressed_since_last=1") {
+		t.Fatalf("suppressed count missing: %s", buf.String())
+	}
+}
+
+func TestMetricsRegistry(t *testing.T) {
+	met := &ingest.Metrics{}
+	met.Received.Add(5)
+	met.Count(ingest.ReasonSpike, 2)
+	met.GapNanos.Add(uint64(1500 * time.Millisecond))
+	reg := prometheus.NewRegistry()
+	if err := met.Register(reg); err != nil {
+		t.Fatal(err)
+	}
+	mfs, err := reg.Gather()
+	if err != nil {
+		t.Fatal(err)
+	}
+	vals := map[string]float64{}
+	for _, mf := range mfs {
+		if !strings.HasPrefix(mf.GetName(), "exergywatch_ingest_") {
+			t.Errorf("metric %s outside exergywatch_ingest_", mf.GetName())
+		}
+		for _, m := range mf.GetMetric() {
+			key := mf.GetName()
+			for _, lp := range m.GetLabel() {
+				key += "{" + lp.GetName() + "=" + lp.GetValue() + "}"
+			}
+			if c := m.GetCounter(); c != nil {
+				vals[key] = c.GetValue()
+			}
+		}
+	}
+	if vals["exergywatch_ingest_received_samples_total"] != 5 || vals["exergywatch_ingest_flagged_samples_total{reason=spike}"] != 2 ||
+		vals["exergywatch_ingest_gap_seconds_total"] != 1.5 {
+		t.Fatalf("values %v", vals)
+	}
+}
