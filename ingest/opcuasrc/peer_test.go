@@ -3,6 +3,8 @@ package opcuasrc
 import (
 	"bufio"
 	"context"
+	"crypto/x509"
+	"encoding/pem"
 	"errors"
 	"fmt"
 	"io"
@@ -146,6 +148,66 @@ func TestPeerSecurity(t *testing.T) {
 			}
 		})
 	}
+
+	t.Run("certificate identity subscribes", func(t *testing.T) {
+		// X509 identity token signed with the client's key (OPC UA Part 4,
+		// 7.36.5); the peer trusts unknown certificates (test PKI).
+		der, key, err := SelfSigned("urn:exergywatch:client", []string{"localhost"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		dir := t.TempDir()
+		certFile, keyFile := filepath.Join(dir, "cert.pem"), filepath.Join(dir, "key.pem")
+		if err := os.WriteFile(certFile, pem.EncodeToMemory(&pem.Block{Type: "CERTIFICATE", Bytes: der}), 0o600); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(keyFile, pem.EncodeToMemory(&pem.Block{Type: "RSA PRIVATE KEY", Bytes: x509.MarshalPKCS1PrivateKey(key)}), 0o600); err != nil {
+			t.Fatal(err)
+		}
+		c, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
+			Auth: "certificate", CertFile: certFile, KeyFile: keyFile}, nil, nil, nil)
+		if err != nil {
+			t.Fatalf("certificate identity: %v", err)
+		}
+		cctx, ccancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer ccancel()
+		_ = c.Close(cctx)
+	})
+
+	t.Run("absolute deadband", func(t *testing.T) {
+		// PT101 rises by 1 every 100 ms; with an absolute deadband of 2.5 a
+		// server that applies the DataChangeFilter (OPC UA Part 4, 7.22.2)
+		// reports only changes above 2.5 (the rule itself; no table).
+		q := ingest.NewQueue(256, nil)
+		src, err := New(Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt", Auth: "username",
+			User: peerUser, Password: peerPassword, PublishingInterval: 100 * time.Millisecond,
+			Items: []ItemConfig{{NodeID: "ns=1;s=Turbine1.PT101", Tag: "pt101", SamplingInterval: 100 * time.Millisecond, QueueSize: 20, Deadband: 2.5}}},
+			q, nil, quietLog(), nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		k, stopSink := drain(q)
+		defer stopSink()
+		rctx, rcancel := context.WithCancel(ctx)
+		done := make(chan error, 1)
+		go func() { done <- src.Run(rctx) }()
+		defer func() { rcancel(); <-done }()
+		first := waitSample(t, k, "pt101", 30*time.Second, nil, func(s ingest.Sample) bool { return s.Tag == "pt101" })
+		waitSample(t, k, "several changes", 15*time.Second, nil, func(s ingest.Sample) bool { return s.Value >= first.Value+10 })
+		k.mu.Lock()
+		defer k.mu.Unlock()
+		var vals []float64
+		for _, s := range k.samples {
+			if s.Tag == "pt101" && s.Quality == ingest.Good {
+				vals = append(vals, s.Value)
+			}
+		}
+		for i := 1; i < len(vals); i++ {
+			if d := vals[i] - vals[i-1]; d <= 2.5 {
+				t.Fatalf("change %g -> %g (%g) passed a 2.5 deadband; values %v", vals[i-1], vals[i], d, vals)
+			}
+		}
+	})
 
 	t.Run("wrong password refused", func(t *testing.T) {
 		_, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
