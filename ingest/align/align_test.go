@@ -183,3 +183,41 @@ func TestSkewAndStale(t *testing.T) {
 		t.Errorf("snapshot skew %v reasons %v quality %v", s.Skew, s.Reasons, s.Quality)
 	}
 }
+
+// FuzzEngineIngest feeds arbitrary values, times and qualities: never a
+// panic, never a silent NaN (a NaN value is always marked bad), and every
+// sample either accepted or counted with a reason.
+func FuzzEngineIngest(f *testing.F) {
+	f.Add(uint8(0), 1e5, int64(0), uint8(0), uint8(0), 2e5, int64(1e9))
+	f.Add(uint8(1), math.NaN(), int64(-1<<62), uint8(2), uint8(1), math.Inf(-1), int64(1<<62))
+	f.Add(uint8(2), -1e308, int64(-3e9), uint8(1), uint8(2), 1e308, int64(-3e9))
+	f.Fuzz(func(t *testing.T, tag uint8, v1 float64, dt1 int64, q1 uint8, tag2 uint8, v2 float64, dt2 int64) {
+		e, met := newEngine(t, Config{Window: time.Minute, MaxSkew: time.Second}, tagmap.Config{SitePressure: "1bar", Tags: []tagmap.TagConfig{
+			{Tag: "t0", Machine: "m", Port: "inlet", Quantity: "p", Unit: "barg", Checks: tagmap.CheckConfig{SpikeWindow: 3, MaxRatePerS: "1bar", StuckPeriod: time.Second}},
+			{Tag: "t1", Machine: "m", Port: "outlet", Quantity: "T", Unit: "degF", Checks: tagmap.CheckConfig{StaleAfter: time.Second}},
+			{Tag: "t2", Machine: "m", Port: "shaft", Quantity: "power", Scale: &tagmap.ScaleConfig{RawMin: 0, RawMax: 1, EngMin: 0, EngMax: 1e300}},
+		}})
+		now := at(100)
+		names := []string{"t0", "t1", "t2", "tx"}
+		mk := func(tag uint8, v float64, dt int64, q uint8) ingest.Sample {
+			return ingest.Sample{Tag: names[int(tag)%4], SourceTime: now.Add(time.Duration(dt)), ReceiveTime: now, Value: v, Quality: ingest.Quality(q % 3)}
+		}
+		batch := []ingest.Sample{mk(tag, v1, dt1, q1), mk(tag2, v2, dt2, 0), mk(tag, v1, dt1, q1)}
+		e.Ingest(batch, now)
+		var dropped uint64
+		for _, r := range []ingest.Reason{ingest.ReasonNonFinite, ingest.ReasonTimeTooOld, ingest.ReasonTimeFuture, ingest.ReasonUnmapped,
+			ingest.ReasonDuplicate, ingest.ReasonLate, ingest.ReasonNoBarometer} {
+			dropped += met.Reason(r)
+		}
+		if met.Accepted.Load()+dropped != 3 {
+			t.Fatalf("accepted %d + dropped %d != 3", met.Accepted.Load(), dropped)
+		}
+		for _, s := range e.Evaluate(now.Add(time.Second)) {
+			for k, v := range s.Values {
+				if (math.IsNaN(v.SI) || math.IsInf(v.SI, 0)) && v.Quality != ingest.Bad {
+					t.Fatalf("%v: non-finite %v with quality %v", k, v.SI, v.Quality)
+				}
+			}
+		}
+	})
+}
