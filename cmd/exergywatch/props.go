@@ -12,7 +12,7 @@ import (
 
 	"github.com/exergywatch/exergywatch/config/units"
 	"github.com/exergywatch/exergywatch/thermo"
-	"github.com/exergywatch/exergywatch/thermo/if97"
+	"github.com/exergywatch/exergywatch/thermo/fluids"
 )
 
 func init() {
@@ -28,7 +28,14 @@ p,T  p,h  p,s  p,x  T,x  h,s). Values take a unit; a bare number is SI.
   --h   specific enthalpy   J/kg kJ/kg
   --s   specific entropy    J/kgK kJ/kgK
   --x   vapour fraction     0..1 (or %)
-  --fluid water             IAPWS-IF97 water and steam
+  --fluid NAME              water (IAPWS-IF97), air, humid-air, flue-gas, ideal-gas,
+                            natural-gas (GERG-2008), ammonia, r134a, co2, nitrogen,
+                            methane, air-helmholtz, water-iapws95, ammonia-1993
+  --composition "CH4=0.9,C2H6=0.06,N2=0.04"
+                            mole fractions for natural-gas, ideal-gas and the fuel
+                            of flue-gas (with --excess-air 1.5 = 150 %)
+  --humidity 60% --ambient-T 25degC --ambient-p 101.325kPa
+                            water content of humid-air
   --json                    one JSON object in SI units: p T v rho u h s cp cv w x
                             phase region (cp, cv, w null inside the two-phase
                             region; x null for a single-phase state)
@@ -57,15 +64,17 @@ var propsPairs = map[string]thermo.Pair{
 	"p,T": thermo.PT, "p,h": thermo.PH, "p,s": thermo.PS, "p,x": thermo.PX, "T,x": thermo.TX, "h,s": thermo.HS,
 }
 
-// propsFluid returns the property model for a fluid name.
-func propsFluid(name string) (thermo.Fluid, error) {
+// propsFluid returns the property model for a fluid name (thermo/fluids
+// names; "steam" is an alias of water).
+func propsFluid(name string, spec fluids.Spec) (thermo.Fluid, error) {
 	switch name {
-	case "water", "steam":
-		return if97.Water{}, nil
+	case "steam":
+		name = "water"
 	case "":
 		return nil, errors.New("--fluid is required (e.g. --fluid water)")
 	}
-	return nil, fmt.Errorf("unknown fluid %q (props knows: water)", name)
+	spec.Name = name
+	return fluids.FromSpec(spec)
 }
 
 // propsJSON is the --json output: SI units, null where undefined.
@@ -95,6 +104,11 @@ func runProps(args []string, stdout, stderr io.Writer) int {
 	fs.SetOutput(io.Discard)
 	fluid := fs.String("fluid", "", "fluid name")
 	asJSON := fs.Bool("json", false, "JSON output")
+	comp := fs.String("composition", "", "mole fractions NAME=x,...")
+	humidity := fs.String("humidity", "", "relative humidity of humid-air (fraction or %)")
+	ambT := fs.String("ambient-T", "", "ambient temperature of humid-air")
+	ambP := fs.String("ambient-p", "", "ambient pressure of humid-air")
+	excess := fs.Float64("excess-air", 0, "excess air of flue-gas, fraction")
 	vars := []*propsVar{
 		{name: "p", kind: units.Pressure},
 		{name: "T", kind: units.Temperature},
@@ -121,7 +135,29 @@ func runProps(args []string, stdout, stderr io.Writer) int {
 	if fs.NArg() > 0 {
 		return fail("unexpected argument %q (see exergywatch props -h)", fs.Arg(0))
 	}
-	f, err := propsFluid(*fluid)
+	spec := fluids.Spec{ExcessAir: *excess}
+	if *comp != "" {
+		c, err := fluids.ParseComposition(*comp)
+		if err != nil {
+			return fail("--composition: %v", err)
+		}
+		spec.Composition = c
+	}
+	for _, q := range []struct {
+		flag, val string
+		kind      units.Kind
+		dst       *float64
+	}{{"humidity", *humidity, units.Fraction, &spec.RelativeHumidity}, {"ambient-T", *ambT, units.Temperature, &spec.AmbientT}, {"ambient-p", *ambP, units.Pressure, &spec.AmbientP}} {
+		if q.val == "" {
+			continue
+		}
+		v, err := units.Parse(q.val, q.kind)
+		if err != nil {
+			return fail("--%s: %v", q.flag, err)
+		}
+		*q.dst = v
+	}
+	f, err := propsFluid(*fluid, spec)
 	if err != nil {
 		return fail("%v", err)
 	}
