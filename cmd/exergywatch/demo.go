@@ -263,7 +263,14 @@ func printSummary(w io.Writer, v statusView, elapsed time.Duration, load float64
 		fmt.Fprintf(&b, "%-15s %-11s %-9s %8s %7s %9s %10s %11s %11s  %s%s\n", m.ID, m.Mode, state, eta, u, dev, sgen, lost, cost, m.Quality, shortReasons(m.Reasons))
 	}
 	for _, a := range v.Alerts {
-		fmt.Fprintf(&b, "ALERT %-7s %s %s (%s): %s = %.4g, limit %.4g, since %s\n", a.State, a.Machine, a.Rule, a.Class, a.Figure, a.Value, a.Limit, a.Since.Format("15:04:05"))
+		what := a.Figure
+		switch a.Kind {
+		case "deviation":
+			what = "deviation of " + a.Figure + " from baseline"
+		case "rate":
+			what = "rate of " + a.Figure + " per hour"
+		}
+		fmt.Fprintf(&b, "ALERT %-7s %s %s (%s): %s = %.4g, limit %.4g, since %s\n", a.State, a.Machine, a.Rule, a.Class, what, a.Value, a.Limit, a.Since.Format("15:04:05"))
 	}
 	for _, e := range events {
 		if e.To == compute.AlertFiring || e.To == compute.AlertResolved {

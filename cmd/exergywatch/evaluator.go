@@ -367,7 +367,7 @@ func (e *evaluator) activeAlerts() []alertView {
 	var out []alertView
 	for _, r := range e.rules {
 		if r.S.State == compute.AlertPending || r.S.State == compute.AlertFiring {
-			out = append(out, alertView{Machine: e.id, Rule: r.Rule.Name, Class: string(r.Rule.Class), Figure: r.Rule.Figure,
+			out = append(out, alertView{Machine: e.id, Rule: r.Rule.Name, Class: string(r.Rule.Class), Kind: string(r.Rule.Kind), Figure: r.Rule.Figure,
 				State: r.S.State.String(), Since: r.S.Since, Value: r.S.LastValue, Limit: r.Rule.Limit, U95: r.S.LastU95})
 		}
 	}
@@ -378,6 +378,7 @@ type alertView struct {
 	Machine string    `json:"machine"`
 	Rule    string    `json:"rule"`
 	Class   string    `json:"class"`
+	Kind    string    `json:"kind"` // threshold, deviation (value is the deviation from the baseline) or rate (per hour)
 	Figure  string    `json:"figure"`
 	State   string    `json:"state"`
 	Since   time.Time `json:"since"`

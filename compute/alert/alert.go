@@ -258,9 +258,9 @@ func (m *Machine) reason(ev *compute.Event) string {
 	case compute.AlertInactive:
 		fmt.Fprintf(&b, "%s of %s returned to %.4g before the hold time; not raised", what, r.Machine, ev.Value)
 	}
-	if r.Advice != "" && ev.To == compute.AlertFiring {
+	if advice := strings.TrimRight(strings.TrimSpace(r.Advice), "."); advice != "" && ev.To == compute.AlertFiring {
 		b.WriteString(". ")
-		b.WriteString(r.Advice)
+		b.WriteString(advice)
 	}
 	b.WriteString(". Advisory only; act under site procedures.")
 	return b.String()
