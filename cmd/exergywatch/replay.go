@@ -1,0 +1,1191 @@
+package main
+
+// Readers of recorded tag history for `exergywatch replay`.
+//
+// CSV: a header row naming at least the columns tag, time and value, and
+// optionally quality (any order; other columns are ignored; names are
+// case-insensitive). Fields are comma-separated; a field may be double-quoted
+// ("" is a quote inside it) but may not span lines. time is RFC 3339 (a
+// fraction of seconds and any offset allowed) or Unix milliseconds (an
+// integer, optionally with up to six decimals). value is a decimal number in
+// the unit the tag map configures for the tag. quality is good, uncertain or
+// bad (empty: good). Blank lines and lines starting with '#' are skipped; a
+// UTF-8 byte-order mark and CRLF line ends are accepted.
+//
+// Line protocol: decoded by ingest/payload, the daemon's own NATS decoder,
+// one line at a time: the tag name is the value of the line-protocol tag
+// "tag" when present, else the measurement; a field named "value" gives that
+// name as it is and every other field "<name>.<field>"; the string field
+// "quality" (good, uncertain, bad) and the integer field "status" (an OPC UA
+// StatusCode) qualify the line's other fields. Every line must carry a
+// timestamp, in the precision given by --precision (default ns).
+//
+// A row that cannot be read is counted with its reason and its file:line
+// (the first few are kept for the summary) and skipped; it never stops the
+// replay.
+
+import (
+	"bufio"
+	"bytes"
+	"container/heap"
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strconv"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"syscall"
+	"time"
+
+	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/config"
+	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/align"
+	"github.com/exergywatch/exergywatch/ingest/payload"
+	"github.com/exergywatch/exergywatch/sinks"
+)
+
+// Reasons a row of an input file is rejected (keys of the summary).
+const (
+	rejTooLong     = "line too long"
+	rejFields      = "missing field"
+	rejQuote       = "bad quoting"
+	rejTag         = "empty tag"
+	rejTime        = "bad time"
+	rejValue       = "bad value"
+	rejNonFinite   = "non-finite value"
+	rejQuality     = "unknown quality"
+	rejNoTimestamp = "no timestamp"
+)
+
+// maxLine is the longest input line read (bytes).
+const maxLine = 64 << 10
+
+// reorderDepth is how many samples of one file are held to sort out local
+// disorder before they enter the merge.
+const reorderDepth = 4096
+
+// ErrHeader reports a CSV file without a usable header row.
+var ErrHeader = errors.New("csv header")
+
+// rowError is one rejected row.
+type rowError struct {
+	File   string
+	Line   int
+	Reason string
+	Detail string
+}
+
+func (e rowError) String() string {
+	if e.Detail == "" {
+		return fmt.Sprintf("%s:%d: %s", e.File, e.Line, e.Reason)
+	}
+	return fmt.Sprintf("%s:%d: %s: %s", e.File, e.Line, e.Reason, e.Detail)
+}
+
+// rejects counts rejected rows by reason and keeps the first few.
+type rejects struct {
+	ByReason map[string]uint64
+	First    []rowError
+	Total    uint64
+}
+
+func (r *rejects) add(e rowError) {
+	if r.ByReason == nil {
+		r.ByReason = map[string]uint64{}
+	}
+	r.ByReason[e.Reason]++
+	r.Total++
+	if len(r.First) < 10 {
+		r.First = append(r.First, e)
+	}
+}
+
+// lineReader yields lines (without the line end) with their numbers; lines
+// longer than maxLine are reported once as too long and skipped.
+type lineReader struct {
+	r      *bufio.Reader
+	n      int
+	err    error
+	counts *countingReader
+}
+
+type countingReader struct {
+	r io.Reader
+	n int64
+}
+
+func (c *countingReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	c.n += int64(n)
+	return n, err
+}
+
+func newLineReader(r io.Reader) *lineReader {
+	c := &countingReader{r: r}
+	return &lineReader{r: bufio.NewReaderSize(c, maxLine), counts: c}
+}
+
+// next returns the next line; tooLong is set for a line that was skipped.
+func (l *lineReader) next() (line []byte, n int, tooLong bool, ok bool) {
+	if l.err != nil {
+		return nil, l.n, false, false
+	}
+	b, err := l.r.ReadSlice('\n')
+	l.n++
+	if errors.Is(err, bufio.ErrBufferFull) {
+		for errors.Is(err, bufio.ErrBufferFull) {
+			_, err = l.r.ReadSlice('\n')
+		}
+		if err != nil {
+			l.err = err
+		}
+		return nil, l.n, true, true
+	}
+	if err != nil {
+		l.err = err
+		if len(b) == 0 {
+			return nil, l.n, false, false
+		}
+	}
+	b = bytes.TrimSuffix(b, []byte{'\n'})
+	b = bytes.TrimSuffix(b, []byte{'\r'})
+	return b, l.n, false, true
+}
+
+// splitCSV splits one CSV line into fields, appending to dst. Quoted fields
+// may contain commas and doubled quotes.
+func splitCSV(line []byte, dst [][]byte, scratch []byte) ([][]byte, []byte, bool) {
+	dst = dst[:0]
+	scratch = scratch[:0]
+	for {
+		if len(line) > 0 && line[0] == '"' {
+			start := len(scratch)
+			i := 1
+			closed := false
+			for i < len(line) {
+				c := line[i]
+				if c == '"' {
+					if i+1 < len(line) && line[i+1] == '"' {
+						scratch = append(scratch, '"')
+						i += 2
+						continue
+					}
+					closed = true
+					i++
+					break
+				}
+				scratch = append(scratch, c)
+				i++
+			}
+			if !closed {
+				return dst, scratch, false
+			}
+			dst = append(dst, scratch[start:len(scratch):len(scratch)])
+			line = line[i:]
+			if len(line) == 0 {
+				return dst, scratch, true
+			}
+			if line[0] != ',' {
+				return dst, scratch, false
+			}
+			line = line[1:]
+			continue
+		}
+		i := bytes.IndexByte(line, ',')
+		if i < 0 {
+			f := line
+			if bytes.IndexByte(f, '"') >= 0 {
+				return dst, scratch, false
+			}
+			return append(dst, f), scratch, true
+		}
+		f := line[:i]
+		if bytes.IndexByte(f, '"') >= 0 {
+			return dst, scratch, false
+		}
+		dst = append(dst, f)
+		line = line[i+1:]
+	}
+}
+
+// parseTime reads RFC 3339 or Unix milliseconds (integer with up to six
+// decimals).
+func parseTime(b []byte) (time.Time, error) {
+	b = bytes.TrimSpace(b)
+	if len(b) == 0 {
+		return time.Time{}, errors.New("empty")
+	}
+	if bytes.IndexByte(b, 'T') < 0 && bytes.IndexByte(b, 't') < 0 {
+		s := string(b)
+		ip, frac, hasFrac := strings.Cut(s, ".")
+		ms, err := strconv.ParseInt(ip, 10, 64)
+		if err != nil || ip == "" || ip[0] == '+' {
+			return time.Time{}, fmt.Errorf("%q is neither RFC 3339 nor Unix milliseconds", s)
+		}
+		var ns int64
+		if hasFrac {
+			if len(frac) == 0 || len(frac) > 6 {
+				return time.Time{}, fmt.Errorf("%q: Unix milliseconds take 1 to 6 decimals", s)
+			}
+			f, err := strconv.ParseUint(frac, 10, 32)
+			if err != nil {
+				return time.Time{}, fmt.Errorf("%q is neither RFC 3339 nor Unix milliseconds", s)
+			}
+			ns = int64(f)
+			for k := len(frac); k < 6; k++ {
+				ns *= 10
+			}
+			if ms < 0 || ip[0] == '-' {
+				ns = -ns
+			}
+		}
+		// Keep clear of int64 overflow in nanoseconds (about year 2262).
+		const lim = math.MaxInt64/int64(time.Millisecond) - 1
+		if ms > lim || ms < -lim {
+			return time.Time{}, fmt.Errorf("%q: out of range", s)
+		}
+		return time.Unix(0, ms*int64(time.Millisecond)+ns).UTC(), nil
+	}
+	t, err := time.Parse(time.RFC3339Nano, string(b))
+	if err != nil {
+		return time.Time{}, fmt.Errorf("%q is neither RFC 3339 nor Unix milliseconds", string(b))
+	}
+	return t.UTC(), nil
+}
+
+func parseQualityField(b []byte) (ingest.Quality, bool) {
+	switch strings.ToLower(string(bytes.TrimSpace(b))) {
+	case "", "good":
+		return ingest.Good, true
+	case "uncertain":
+		return ingest.Uncertain, true
+	case "bad":
+		return ingest.Bad, true
+	}
+	return 0, false
+}
+
+// csvReader reads one CSV file.
+type csvReader struct {
+	name   string
+	lr     *lineReader
+	rej    *rejects
+	intern map[string]string
+	col    struct{ tag, time, value, quality, need int }
+	header bool
+	fields [][]byte
+	buf    []byte
+}
+
+func newCSVReader(name string, r io.Reader, rej *rejects) *csvReader {
+	return &csvReader{name: name, lr: newLineReader(r), rej: rej, intern: map[string]string{}}
+}
+
+func (c *csvReader) readHeader(line []byte, n int) error {
+	line = bytes.TrimPrefix(line, []byte("\xef\xbb\xbf"))
+	fs, _, ok := splitCSV(line, nil, nil)
+	if !ok {
+		return fmt.Errorf("%s:%d: %w: bad quoting; the first row must name the columns tag,time,value[,quality]", c.name, n, ErrHeader)
+	}
+	c.col.tag, c.col.time, c.col.value, c.col.quality = -1, -1, -1, -1
+	for i, f := range fs {
+		switch strings.ToLower(strings.TrimSpace(string(f))) {
+		case "tag":
+			c.col.tag = i
+		case "time":
+			c.col.time = i
+		case "value":
+			c.col.value = i
+		case "quality":
+			c.col.quality = i
+		}
+	}
+	if c.col.tag < 0 || c.col.time < 0 || c.col.value < 0 {
+		return fmt.Errorf("%s:%d: %w: the first row must name the columns tag,time,value[,quality]; got %q", c.name, n, ErrHeader, string(line))
+	}
+	c.col.need = max(c.col.tag, c.col.time, c.col.value, c.col.quality) + 1
+	c.header = true
+	return nil
+}
+
+// next returns the next good sample; ok is false at the end of the file.
+// err is set only for a missing or unusable header.
+func (c *csvReader) next() (s ingest.Sample, ok bool, err error) {
+	for {
+		line, n, tooLong, more := c.lr.next()
+		if !more {
+			return s, false, nil
+		}
+		if tooLong {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejTooLong})
+			continue
+		}
+		if t := bytes.TrimSpace(line); len(t) == 0 || t[0] == '#' {
+			continue
+		}
+		if !c.header {
+			if err := c.readHeader(line, n); err != nil {
+				return s, false, err
+			}
+			continue
+		}
+		var good bool
+		c.fields, c.buf, good = splitCSV(line, c.fields, c.buf)
+		if !good {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejQuote})
+			continue
+		}
+		if len(c.fields) < c.col.need && !(c.col.quality == c.col.need-1 && len(c.fields) == c.col.need-1) {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejFields, Detail: fmt.Sprintf("%d fields", len(c.fields))})
+			continue
+		}
+		tagB := bytes.TrimSpace(c.fields[c.col.tag])
+		if len(tagB) == 0 {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejTag})
+			continue
+		}
+		t, err := parseTime(c.fields[c.col.time])
+		if err != nil {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejTime, Detail: err.Error()})
+			continue
+		}
+		v, err := strconv.ParseFloat(string(bytes.TrimSpace(c.fields[c.col.value])), 64)
+		if err != nil {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejValue, Detail: fmt.Sprintf("%q", c.fields[c.col.value])})
+			continue
+		}
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			c.rej.add(rowError{File: c.name, Line: n, Reason: rejNonFinite})
+			continue
+		}
+		q := ingest.Good
+		if c.col.quality >= 0 && c.col.quality < len(c.fields) {
+			var qok bool
+			if q, qok = parseQualityField(c.fields[c.col.quality]); !qok {
+				c.rej.add(rowError{File: c.name, Line: n, Reason: rejQuality, Detail: fmt.Sprintf("%q (want good, uncertain or bad)", c.fields[c.col.quality])})
+				continue
+			}
+		}
+		tag, hit := c.intern[string(tagB)]
+		if !hit {
+			tag = string(tagB)
+			c.intern[tag] = tag
+		}
+		return ingest.Sample{Tag: tag, SourceTime: t, ReceiveTime: t, Value: v, Quality: q}, true, nil
+	}
+}
+
+// lineProtoReader reads one line-protocol file with the daemon's decoder.
+type lineProtoReader struct {
+	name    string
+	lr      *lineReader
+	rej     *rejects
+	dec     *payload.Decoder
+	pending []ingest.Sample
+	errs    []payload.Error
+}
+
+func newLineProtoReader(name string, r io.Reader, precision time.Duration, rej *rejects) *lineProtoReader {
+	d := payload.NewDecoder(payload.LineProtocol)
+	d.Precision = precision
+	return &lineProtoReader{name: name, lr: newLineReader(r), rej: rej, dec: d}
+}
+
+var lpSentinels = []error{payload.ErrSyntax, payload.ErrNoTag, payload.ErrNoValue, payload.ErrBadValue, payload.ErrBadTime, payload.ErrBadStatus, payload.ErrQuality}
+
+func (l *lineProtoReader) next() (ingest.Sample, bool, error) {
+	for len(l.pending) == 0 {
+		line, n, tooLong, more := l.lr.next()
+		if !more {
+			return ingest.Sample{}, false, nil
+		}
+		if tooLong {
+			l.rej.add(rowError{File: l.name, Line: n, Reason: rejTooLong})
+			continue
+		}
+		l.pending, l.errs = l.dec.Decode(line, time.Time{}, l.pending[:0], l.errs[:0])
+		for _, e := range l.errs {
+			reason := "line protocol: other"
+			for _, s := range lpSentinels {
+				if errors.Is(e, s) {
+					reason = "line protocol: " + s.Error()
+					break
+				}
+			}
+			l.rej.add(rowError{File: l.name, Line: n, Reason: reason, Detail: e.Error()})
+		}
+		kept := l.pending[:0]
+		for _, s := range l.pending {
+			switch {
+			case s.SourceTime.IsZero():
+				l.rej.add(rowError{File: l.name, Line: n, Reason: rejNoTimestamp, Detail: s.Tag})
+			case math.IsNaN(s.Value) || math.IsInf(s.Value, 0):
+				l.rej.add(rowError{File: l.name, Line: n, Reason: rejNonFinite, Detail: s.Tag})
+			default:
+				s.ReceiveTime = s.SourceTime
+				kept = append(kept, s)
+			}
+		}
+		l.pending = kept
+	}
+	s := l.pending[0]
+	l.pending = l.pending[1:]
+	return s, true, nil
+}
+
+// rowSource is one input file.
+type rowSource interface {
+	next() (ingest.Sample, bool, error)
+}
+
+// sampleHeap orders samples by time, then by input order.
+type seqSample struct {
+	s   ingest.Sample
+	t   int64
+	seq uint64
+	src int
+}
+
+type sampleHeap []seqSample
+
+func (h sampleHeap) Len() int { return len(h) }
+func (h sampleHeap) Less(i, j int) bool {
+	if h[i].t != h[j].t {
+		return h[i].t < h[j].t
+	}
+	return h[i].seq < h[j].seq
+}
+func (h sampleHeap) Swap(i, j int) { h[i], h[j] = h[j], h[i] }
+func (h *sampleHeap) Push(x any)   { *h = append(*h, x.(seqSample)) }
+func (h *sampleHeap) Pop() any {
+	old := *h
+	x := old[len(old)-1]
+	*h = old[:len(old)-1]
+	return x
+}
+
+// reorder holds up to reorderDepth samples of one file and releases the
+// oldest, sorting out local disorder.
+type reorder struct {
+	src  rowSource
+	h    sampleHeap
+	seq  uint64
+	done bool
+}
+
+func (r *reorder) next() (ingest.Sample, bool, error) {
+	for !r.done && len(r.h) < reorderDepth {
+		s, ok, err := r.src.next()
+		if err != nil {
+			return s, false, err
+		}
+		if !ok {
+			r.done = true
+			break
+		}
+		r.seq++
+		heap.Push(&r.h, seqSample{s: s, t: s.SourceTime.UnixNano(), seq: r.seq})
+	}
+	if len(r.h) == 0 {
+		return ingest.Sample{}, false, nil
+	}
+	x := heap.Pop(&r.h).(seqSample)
+	return x.s, true, nil
+}
+
+// merger merges several time-ordered streams into one.
+type merger struct {
+	srcs []rowSource
+	h    sampleHeap
+	init bool
+	seq  uint64
+}
+
+func (m *merger) pull(i int) error {
+	s, ok, err := m.srcs[i].next()
+	if err != nil || !ok {
+		return err
+	}
+	m.seq++
+	heap.Push(&m.h, seqSample{s: s, t: s.SourceTime.UnixNano(), seq: m.seq, src: i})
+	return nil
+}
+
+func (m *merger) next() (ingest.Sample, bool, error) {
+	if !m.init {
+		m.init = true
+		for i := range m.srcs {
+			if err := m.pull(i); err != nil {
+				return ingest.Sample{}, false, err
+			}
+		}
+	}
+	if len(m.h) == 0 {
+		return ingest.Sample{}, false, nil
+	}
+	x := heap.Pop(&m.h).(seqSample)
+	if err := m.pull(x.src); err != nil {
+		return ingest.Sample{}, false, err
+	}
+	return x.s, true, nil
+}
+
+// ---- the replay driver ----------------------------------------------------
+
+// replaySource is the time-ordered stream a replay consumes.
+type replaySource interface {
+	next() (ingest.Sample, bool, error)
+	// progress is the fraction of the input consumed, 0..1.
+	progress() float64
+}
+
+// fileSet is the merged input files.
+type fileSet struct {
+	m     *merger
+	lrs   []*lineReader
+	total int64
+	close []func() error
+}
+
+func (f *fileSet) next() (ingest.Sample, bool, error) { return f.m.next() }
+
+func (f *fileSet) progress() float64 {
+	if f.total <= 0 {
+		return 0
+	}
+	var n int64
+	for _, l := range f.lrs {
+		n += l.counts.n
+	}
+	return min(float64(n)/float64(f.total), 1)
+}
+
+func (f *fileSet) Close() error {
+	var err error
+	for _, c := range f.close {
+		err = errors.Join(err, c())
+	}
+	return err
+}
+
+// formatOf picks the format of one input: the --format flag, else the file
+// extension (.csv; .lp, .line, .influx), else the first non-blank line (a
+// header row naming tag, time and value is CSV).
+func formatOf(flagFormat, name string, head []byte) string {
+	if flagFormat != "auto" {
+		return flagFormat
+	}
+	switch strings.ToLower(filepath.Ext(name)) {
+	case ".csv":
+		return "csv"
+	case ".lp", ".line", ".influx":
+		return "line"
+	}
+	for _, line := range bytes.Split(head, []byte{'\n'}) {
+		line = bytes.TrimSpace(bytes.TrimPrefix(line, []byte("\xef\xbb\xbf")))
+		if len(line) == 0 || line[0] == '#' {
+			continue
+		}
+		l := strings.ToLower(string(line))
+		if strings.Contains(l, "tag") && strings.Contains(l, "time") && strings.Contains(l, "value") && strings.Contains(l, ",") && !strings.Contains(l, " ") {
+			return "csv"
+		}
+		return "line"
+	}
+	return "csv"
+}
+
+// openInputs opens every input file and merges them by time.
+func openInputs(names []string, format string, precision time.Duration, rej *rejects) (*fileSet, error) {
+	fs := &fileSet{m: &merger{}}
+	for _, name := range names {
+		f, err := os.Open(name)
+		if err != nil {
+			_ = fs.Close()
+			return nil, err
+		}
+		fs.close = append(fs.close, f.Close)
+		if st, err := f.Stat(); err == nil {
+			fs.total += st.Size()
+		}
+		br := bufio.NewReaderSize(f, 64<<10)
+		head, _ := br.Peek(4096)
+		var src rowSource
+		switch formatOf(format, name, head) {
+		case "csv":
+			c := newCSVReader(name, br, rej)
+			fs.lrs = append(fs.lrs, c.lr)
+			src = c
+		default:
+			l := newLineProtoReader(name, br, precision, rej)
+			fs.lrs = append(fs.lrs, l.lr)
+			src = l
+		}
+		fs.m.srcs = append(fs.m.srcs, &reorder{src: src})
+	}
+	return fs, nil
+}
+
+// replayOptions steer one replay.
+type replayOptions struct {
+	from, to time.Time // zero: unbounded; to is exclusive
+	workers  int       // evaluation goroutines (default GOMAXPROCS)
+	// progress, when set, is called from one goroutine every progressEvery.
+	progress      func(replayProgress)
+	progressEvery time.Duration
+}
+
+type replayProgress struct {
+	Fraction    float64
+	Samples     uint64
+	Evaluations uint64
+	Elapsed     time.Duration
+	At          time.Time // time of the last tick evaluated
+}
+
+// replayResult is what the summary prints.
+type replayResult struct {
+	Samples          uint64 // samples handed to the alignment engine
+	Skipped          uint64 // samples outside --from/--to
+	Ticks            uint64
+	Evaluations      uint64
+	ByQuality        map[compute.Quality]uint64
+	AlertTransitions uint64
+	AlertsFiring     uint64 // transitions into firing
+	SinkDrops        uint64 // records or events a sink queue refused
+	First, Last      time.Time
+	Wall             time.Duration
+}
+
+type replayWorker struct {
+	in        chan []*align.Snapshot
+	evals     uint64
+	q         [4]uint64
+	trans     uint64
+	firing    uint64
+	sinkDrops uint64
+}
+
+// replay drives pipeline p from src with a fake clock: samples enter the
+// alignment engine in time order, a tick is evaluated at every evaluation
+// interval across the data span, and each machine's snapshots go, in tick
+// order, to one evaluation goroutine (machines are independent, so several
+// goroutines share them). Records and events go to p's sinks; the sinks'
+// queues are watched so that nothing is dropped for speed.
+func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOptions) (replayResult, error) {
+	start := time.Now()
+	res := replayResult{ByQuality: map[compute.Quality]uint64{}}
+	iv := p.cfg.Evaluation.Interval.D()
+	if iv <= 0 {
+		return res, fmt.Errorf("evaluation interval %v: must be positive", iv)
+	}
+	late := p.cfg.Alignment.LateHorizon
+	if late <= 0 {
+		late = p.cfg.Alignment.Window
+	}
+	if late <= 0 {
+		late = 60 * time.Second
+	}
+	maxSpan := late / 2
+	workers := opt.workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = max(1, min(workers, len(p.order)))
+	route := map[string]int{}
+	for i, id := range p.order {
+		route[id] = i % workers
+	}
+	// Sink queue limits: keep every queue under a quarter of its bound.
+	var limits []int64
+	for _, s := range p.cfg.Sinks {
+		q := s.QueueLen
+		if q <= 0 {
+			q = p.cfg.Fanout.QueueLen
+		}
+		if q <= 0 {
+			q = 4096
+		}
+		limits = append(limits, int64(max(q/4, 1)))
+	}
+	wctx := context.WithoutCancel(ctx)
+	ws := make([]*replayWorker, workers)
+	var wg sync.WaitGroup
+	for i := range ws {
+		w := &replayWorker{in: make(chan []*align.Snapshot, 32)}
+		ws[i] = w
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for batch := range w.in {
+				for _, s := range batch {
+					p.replayEvaluate(wctx, s, w)
+				}
+			}
+		}()
+	}
+	var samples atomic.Uint64
+	var frac atomic.Uint64
+	var lastTick atomic.Int64
+	stopProgress := make(chan struct{})
+	progressDone := make(chan struct{})
+	go func() {
+		defer close(progressDone)
+		if opt.progress == nil || opt.progressEvery <= 0 {
+			<-stopProgress
+			return
+		}
+		t := time.NewTicker(opt.progressEvery)
+		defer t.Stop()
+		for {
+			select {
+			case <-stopProgress:
+				return
+			case <-t.C:
+				var e uint64
+				for _, w := range ws {
+					e += atomic.LoadUint64(&w.evals)
+				}
+				at := time.Time{}
+				if n := lastTick.Load(); n != 0 {
+					at = time.Unix(0, n).UTC()
+				}
+				opt.progress(replayProgress{Fraction: float64(frac.Load()) / 1e6, Samples: samples.Load(), Evaluations: e,
+					Elapsed: time.Since(start), At: at})
+			}
+		}
+	}()
+
+	var tick time.Time
+	var chunk []ingest.Sample
+	perWorker := make([][]*align.Snapshot, workers)
+	flush := func() {
+		if len(chunk) == 0 {
+			return
+		}
+		p.engine.Ingest(chunk, chunk[len(chunk)-1].SourceTime)
+		samples.Add(uint64(len(chunk)))
+		chunk = chunk[:0]
+	}
+	waitSinks := func() {
+		for {
+			full := false
+			for i, st := range p.multi.Stats() {
+				if i < len(limits) && st.Queued > limits[i] {
+					full = true
+				}
+			}
+			if !full || ctx.Err() != nil {
+				return
+			}
+			time.Sleep(200 * time.Microsecond)
+		}
+	}
+	evaluate := func(t time.Time) {
+		flush()
+		snaps := p.engine.Evaluate(t)
+		for _, s := range snaps {
+			k, ok := route[s.Machine]
+			if !ok {
+				s.Release()
+				continue
+			}
+			perWorker[k] = append(perWorker[k], s)
+		}
+		for k, b := range perWorker {
+			if len(b) > 0 {
+				ws[k].in <- b
+				perWorker[k] = make([]*align.Snapshot, 0, len(b))
+			}
+		}
+		res.Ticks++
+		lastTick.Store(t.UnixNano())
+		if res.Ticks%8 == 0 {
+			waitSinks()
+		}
+	}
+	var runErr error
+	n := 0
+	for {
+		s, ok, err := src.next()
+		if err != nil {
+			runErr = err
+			break
+		}
+		if !ok {
+			break
+		}
+		n++
+		if n&4095 == 0 {
+			frac.Store(uint64(src.progress() * 1e6))
+			if ctx.Err() != nil {
+				runErr = ctx.Err()
+				break
+			}
+		}
+		t := s.SourceTime
+		if (!opt.from.IsZero() && t.Before(opt.from)) || (!opt.to.IsZero() && !t.Before(opt.to)) {
+			res.Skipped++
+			continue
+		}
+		if res.First.IsZero() {
+			res.First = t
+			tick = t.Truncate(iv).Add(iv)
+		}
+		if t.After(res.Last) {
+			res.Last = t
+		}
+		for t.After(tick) {
+			evaluate(tick)
+			tick = tick.Add(iv)
+		}
+		if len(chunk) > 0 && (len(chunk) >= 4096 || t.Sub(chunk[0].SourceTime) > maxSpan) {
+			flush()
+		}
+		chunk = append(chunk, s)
+		res.Samples++
+	}
+	if runErr == nil && !res.First.IsZero() {
+		// The last tick covers the newest sample.
+		evaluate(tick)
+	}
+	frac.Store(1e6)
+	for _, w := range ws {
+		close(w.in)
+	}
+	wg.Wait()
+	close(stopProgress)
+	<-progressDone
+	for _, w := range ws {
+		res.Evaluations += w.evals
+		for q, c := range w.q {
+			if c > 0 {
+				res.ByQuality[compute.Quality(q)] += c
+			}
+		}
+		res.AlertTransitions += w.trans
+		res.AlertsFiring += w.firing
+		res.SinkDrops += w.sinkDrops
+	}
+	p.saveState()
+	res.Wall = time.Since(start)
+	return res, runErr
+}
+
+// replayEvaluate is evaluateBatch for one snapshot without the pipeline-wide
+// lock (which serialises every machine; a replay has no status API reading
+// evaluator state, and each evaluator is used by one goroutine only).
+func (p *pipeline) replayEvaluate(ctx context.Context, s *align.Snapshot, w *replayWorker) {
+	e, ok := p.evals[s.Machine]
+	if !ok {
+		s.Release()
+		return
+	}
+	rec, events := e.evaluate(s)
+	atomic.AddUint64(&w.evals, 1)
+	if q := int(rec.Quality); q >= 0 && q < len(w.q) {
+		w.q[q]++
+	}
+	p.evaluated.Add(1)
+	if err := p.multi.WriteRecord(ctx, rec); err != nil {
+		p.sinkErrors.Add(1)
+		w.sinkDrops++
+	}
+	for _, ev := range events {
+		p.events.Add(1)
+		w.trans++
+		if ev.To == compute.AlertFiring {
+			w.firing++
+		}
+		p.log.Debug("alert "+ev.To.String(), "machine", ev.Machine, "rule", ev.Rule, "class", string(ev.Class),
+			"figure", ev.Figure, "value", ev.Value, "limit", ev.Limit, "reason", ev.Reason)
+		if err := p.multi.WriteEvent(ctx, ev); err != nil {
+			p.sinkErrors.Add(1)
+			w.sinkDrops++
+		}
+		if err := p.state.WriteEvent(ctx, ev); err != nil {
+			p.log.Warn("alert event not stored", "err", err)
+		}
+		if p.opt.onEvent != nil {
+			p.opt.onEvent(ev)
+		}
+	}
+	if p.opt.onRecord != nil {
+		p.opt.onRecord(rec)
+	}
+	s.Release()
+}
+
+// ---- the command ----------------------------------------------------------
+
+func init() {
+	register("replay", "run recorded tag history (CSV or line protocol) through the pipeline as fast as possible", cmdReplay)
+}
+
+type multiFlag []string
+
+func (m *multiFlag) String() string     { return strings.Join(*m, ",") }
+func (m *multiFlag) Set(s string) error { *m = append(*m, s); return nil }
+
+func isTerminal(w io.Writer) bool {
+	f, ok := w.(*os.File)
+	if !ok {
+		return false
+	}
+	st, err := f.Stat()
+	return err == nil && st.Mode()&os.ModeCharDevice != 0
+}
+
+func parsePrecision(s string) (time.Duration, error) {
+	switch s {
+	case "ns":
+		return time.Nanosecond, nil
+	case "us":
+		return time.Microsecond, nil
+	case "ms":
+		return time.Millisecond, nil
+	case "s":
+		return time.Second, nil
+	}
+	return 0, fmt.Errorf("--precision %q: use ns, us, ms or s", s)
+}
+
+func cmdReplay(args []string, stdout, stderr io.Writer) int {
+	fs := flag.NewFlagSet("replay", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	file := fs.String("c", "", "configuration file (YAML): tag map, alignment, machines, alerts and sinks are used; sources are not")
+	var inputs multiFlag
+	fs.Var(&inputs, "input", "recorded tag history (repeatable; further file names may follow the flags)")
+	format := fs.String("format", "auto", "input format: csv, line (InfluxDB line protocol) or auto (by extension .csv/.lp, else by content)")
+	precision := fs.String("precision", "ns", "line-protocol timestamp precision: ns, us, ms or s")
+	fromS := fs.String("from", "", "replay samples at or after this time (RFC 3339 or Unix ms)")
+	toS := fs.String("to", "", "replay samples before this time (RFC 3339 or Unix ms)")
+	workers := fs.Int("workers", 0, "evaluation goroutines (0: one per CPU)")
+	state := fs.String("state", "", "state file for the evaluators (default: a temporary file, so a live daemon's state is never touched)")
+	every := fs.Duration("progress-every", 10*time.Second, "interval of progress lines when stderr is not a terminal (0: none)")
+	level := fs.String("log-level", "warn", "log level on stderr")
+	if err := fs.Parse(args); err != nil {
+		return 2
+	}
+	inputs = append(inputs, fs.Args()...)
+	fail := func(code int, format string, a ...any) int {
+		fmt.Fprintf(stderr, "exergywatch replay: "+format+"\n", a...)
+		return code
+	}
+	if *file == "" {
+		return fail(2, "-c FILE is required")
+	}
+	if len(inputs) == 0 {
+		return fail(2, "no input: give --input FILE (CSV with header tag,time,value[,quality], or line protocol)")
+	}
+	switch *format {
+	case "auto", "csv", "line":
+	default:
+		return fail(2, "--format %q: use csv, line or auto", *format)
+	}
+	prec, err := parsePrecision(*precision)
+	if err != nil {
+		return fail(2, "%v", err)
+	}
+	var opt replayOptions
+	if *fromS != "" {
+		if opt.from, err = parseTime([]byte(*fromS)); err != nil {
+			return fail(2, "--from: %v", err)
+		}
+	}
+	if *toS != "" {
+		if opt.to, err = parseTime([]byte(*toS)); err != nil {
+			return fail(2, "--to: %v", err)
+		}
+	}
+	if !opt.from.IsZero() && !opt.to.IsZero() && !opt.to.After(opt.from) {
+		return fail(2, "--to must be after --from")
+	}
+	opt.workers = *workers
+	log, err := newLogger(stderr, *level, "text")
+	if err != nil {
+		return fail(2, "%v", err)
+	}
+	cfg, err := config.Load(*file)
+	if err != nil {
+		fmt.Fprintln(stderr, err)
+		return 2
+	}
+	if *state == "" {
+		dir, err := os.MkdirTemp("", "exergywatch-replay-")
+		if err != nil {
+			return fail(1, "%v", err)
+		}
+		defer os.RemoveAll(dir)
+		cfg.State.Path = filepath.Join(dir, "state.db")
+	} else {
+		cfg.State.Path = *state
+	}
+	var rej rejects
+	in, err := openInputs(inputs, *format, prec, &rej)
+	if err != nil {
+		return fail(2, "%v", err)
+	}
+	defer in.Close()
+	p, err := buildPipeline(cfg, pipelineOptions{log: log})
+	if err != nil {
+		return fail(1, "%v", err)
+	}
+	for _, s := range cfg.Sinks {
+		if s.Kind == "store" && s.Store != nil {
+			fmt.Fprintf(stderr, "note: sink %s keeps records for retention_hours=%d counted from the wall clock; older replayed records are pruned at its next retention run\n",
+				s.Name, max(s.Store.RetentionHours, 0))
+		}
+	}
+	tty := isTerminal(stderr)
+	if tty {
+		opt.progressEvery = 200 * time.Millisecond
+		opt.progress = func(pr replayProgress) { fmt.Fprint(stderr, "\r"+progressBar(pr)) }
+	} else if *every > 0 {
+		opt.progressEvery = *every
+		opt.progress = func(pr replayProgress) { fmt.Fprintln(stderr, "replay: "+progressText(pr)) }
+	}
+	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGINT, syscall.SIGTERM)
+	defer stop()
+	began := time.Now()
+	res, runErr := replay(ctx, p, in, opt)
+	if tty {
+		fmt.Fprint(stderr, "\r"+strings.Repeat(" ", 100)+"\r")
+	}
+	stats := p.multi.Stats()
+	closeErr := p.close()
+	stats = mergeStats(stats, p.multi.Stats())
+	res.Wall = time.Since(began) // including the sinks' final flush
+	printReplaySummary(stdout, inputs, &rej, p.metrics, res, stats)
+	if runErr != nil {
+		if errors.Is(runErr, ErrHeader) {
+			return fail(2, "%v", runErr)
+		}
+		return fail(1, "%v", runErr)
+	}
+	if closeErr != nil {
+		return fail(1, "closing the sinks: %v", closeErr)
+	}
+	return 0
+}
+
+// mergeStats prefers the view after Close (everything flushed) when Multi
+// still reports it.
+func mergeStats(before, after []sinks.Stats) []sinks.Stats {
+	if len(after) == len(before) {
+		return after
+	}
+	return before
+}
+
+func progressText(pr replayProgress) string {
+	rate := 0.0
+	if s := pr.Elapsed.Seconds(); s > 0 {
+		rate = float64(pr.Samples) / s
+	}
+	at := "-"
+	if !pr.At.IsZero() {
+		at = pr.At.Format(time.RFC3339)
+	}
+	return fmt.Sprintf("%5.1f %%  %d samples  %d evaluations  at %s  %.0f samples/s  %s elapsed",
+		100*pr.Fraction, pr.Samples, pr.Evaluations, at, rate, pr.Elapsed.Round(time.Second))
+}
+
+func progressBar(pr replayProgress) string {
+	const width = 30
+	n := int(pr.Fraction * width)
+	n = max(0, min(n, width))
+	eta := ""
+	if pr.Fraction > 0.01 && pr.Fraction < 1 {
+		rest := time.Duration(float64(pr.Elapsed) * (1 - pr.Fraction) / pr.Fraction)
+		eta = " eta " + rest.Round(time.Second).String()
+	}
+	rate := 0.0
+	if s := pr.Elapsed.Seconds(); s > 0 {
+		rate = float64(pr.Samples) / s
+	}
+	return fmt.Sprintf("[%s%s] %5.1f%% %s samples %s/s%s   ", strings.Repeat("#", n), strings.Repeat("-", width-n),
+		100*pr.Fraction, siCount(float64(pr.Samples)), siCount(rate), eta)
+}
+
+func siCount(v float64) string {
+	switch {
+	case v >= 1e9:
+		return fmt.Sprintf("%.2fG", v/1e9)
+	case v >= 1e6:
+		return fmt.Sprintf("%.2fM", v/1e6)
+	case v >= 1e3:
+		return fmt.Sprintf("%.1fk", v/1e3)
+	}
+	return fmt.Sprintf("%.0f", v)
+}
+
+func printReplaySummary(w io.Writer, inputs []string, rej *rejects, m *ingest.Metrics, res replayResult, stats []sinks.Stats) {
+	var b strings.Builder
+	fmt.Fprintf(&b, "replay summary\n")
+	fmt.Fprintf(&b, "  inputs            %d file(s)\n", len(inputs))
+	read := res.Samples + res.Skipped
+	fmt.Fprintf(&b, "  samples read      %d (replayed %d, outside --from/--to %d)\n", read, res.Samples, res.Skipped)
+	fmt.Fprintf(&b, "  rows rejected     %d\n", rej.Total)
+	for _, k := range sortedKeys(rej.ByReason) {
+		fmt.Fprintf(&b, "    %-28s %d\n", k, rej.ByReason[k])
+	}
+	for _, e := range rej.First {
+		fmt.Fprintf(&b, "    e.g. %s\n", e)
+	}
+	recv, acc := m.Received.Load(), m.Accepted.Load()
+	fmt.Fprintf(&b, "  alignment         %d of %d samples taken into windows, %d dropped\n", acc, recv, recv-min(acc, recv))
+	var rs []string
+	for r := ingest.Reason(1); int(r) < ingest.NumReasons; r++ {
+		if c := m.Reason(r); c > 0 {
+			rs = append(rs, fmt.Sprintf("%s %d", r, c))
+		}
+	}
+	if len(rs) > 0 {
+		fmt.Fprintf(&b, "    reasons counted: %s\n", strings.Join(rs, ", "))
+	}
+	span := "-"
+	if !res.First.IsZero() {
+		span = res.First.Format(time.RFC3339) + " .. " + res.Last.Format(time.RFC3339)
+	}
+	fmt.Fprintf(&b, "  data span         %s\n", span)
+	fmt.Fprintf(&b, "  evaluations       %d (%d ticks)\n", res.Evaluations, res.Ticks)
+	fmt.Fprintf(&b, "  records           good %d, uncertain %d, transient %d, bad %d\n",
+		res.ByQuality[compute.QualityGood], res.ByQuality[compute.QualityUncertain], res.ByQuality[compute.QualityTransient], res.ByQuality[compute.QualityBad])
+	fmt.Fprintf(&b, "  alerts            %d raised (firing), %d transitions\n", res.AlertsFiring, res.AlertTransitions)
+	for _, s := range stats {
+		fmt.Fprintf(&b, "  sink %-12s written %d, dropped %d, rejected %d", s.Name, s.Written, s.Dropped, s.Rejected)
+		if s.LastError != "" {
+			fmt.Fprintf(&b, ", last error: %s", s.LastError)
+		}
+		b.WriteString("\n")
+	}
+	if res.SinkDrops > 0 {
+		fmt.Fprintf(&b, "  WARNING           %d records or events were refused by a sink queue\n", res.SinkDrops)
+	}
+	secs := res.Wall.Seconds()
+	fmt.Fprintf(&b, "  wall time         %s\n", res.Wall.Round(time.Millisecond))
+	if secs > 0 {
+		fmt.Fprintf(&b, "  throughput        %.0f samples/s, %.0f evaluations/s\n", float64(res.Samples)/secs, float64(res.Evaluations)/secs)
+	}
+	fmt.Fprint(w, b.String())
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
+}
