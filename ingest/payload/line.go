@@ -31,8 +31,12 @@ func (d *Decoder) decodeLines(data []byte, recv time.Time, dst []ingest.Sample, 
 		} else {
 			line, data = data, nil
 		}
-		line = bytes.TrimRight(line, "\r")
-		line = bytes.TrimLeft(line, " \t")
+		for len(line) > 0 && line[len(line)-1] == '\r' {
+			line = line[:len(line)-1]
+		}
+		for len(line) > 0 && (line[0] == ' ' || line[0] == '\t') {
+			line = line[1:]
+		}
 		if len(line) == 0 || line[0] == '#' {
 			continue
 		}
@@ -209,7 +213,11 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 		i++
 	}
 	if i < len(line) {
-		t, perr := strconv.ParseInt(string(bytes.TrimRight(line[i:], " \t")), 10, 64)
+		rest := line[i:]
+		for len(rest) > 0 && (rest[len(rest)-1] == ' ' || rest[len(rest)-1] == '\t') {
+			rest = rest[:len(rest)-1]
+		}
+		t, perr := strconv.ParseInt(string(rest), 10, 64)
 		if perr != nil {
 			return base, fields, 0, false, fmt.Errorf("%w: %q", ErrBadTime, truncate(line[i:]))
 		}
