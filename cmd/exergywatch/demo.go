@@ -284,7 +284,7 @@ func shortReasons(rs []string) string {
 	seen := map[string]bool{}
 	var out []string
 	for _, r := range rs {
-		if strings.HasPrefix(r, "detail:") || r == reasonTransient {
+		if r == reasonTransient {
 			continue
 		}
 		if strings.HasPrefix(r, "input:") {

@@ -50,6 +50,7 @@ type evaluator struct {
 	// status view
 	last       compute.Record
 	lastMode   mode.Mode
+	modeWhy    string // why the machine is not running, for people
 	lastSteady bool
 	lastR      map[string]float64
 	lastGood   compute.Record
@@ -161,7 +162,7 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 	e.inputs = vals
 
 	md, why := e.mode.Update(now, vals)
-	e.lastMode = md
+	e.lastMode, e.modeWhy = md, why
 	steadyNow := false
 	if e.steady != nil {
 		sv := map[string]float64{}
@@ -187,9 +188,6 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 		}
 		rec = compute.Record{Time: now.UTC(), Site: e.site, Machine: e.id, MachineKind: e.kind.String(),
 			Quality: compute.QualityBad, Reasons: []string{code}}
-		if why != "" {
-			rec.Reasons = append(rec.Reasons, "detail:"+why)
-		}
 	} else {
 		res, err := machine.Evaluate(e.spec, &in)
 		if err != nil {

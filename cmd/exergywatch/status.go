@@ -123,6 +123,7 @@ type machineView struct {
 	ID            string                `json:"id"`
 	Kind          string                `json:"kind"`
 	Mode          string                `json:"mode"`
+	ModeDetail    string                `json:"mode_detail,omitempty"`
 	Steady        bool                  `json:"steady"`
 	R             map[string]float64    `json:"r_statistic,omitempty"`
 	Time          time.Time             `json:"time"`
@@ -170,7 +171,7 @@ func (p *pipeline) status() statusView {
 	v := statusView{Site: p.cfg.Site.Name, Advisory: advisoryNote, Time: time.Now().UTC(), Alerts: []alertView{}}
 	for _, id := range p.order {
 		e := p.evals[id]
-		mv := machineView{ID: id, Kind: e.kind.String(), Mode: e.lastMode.String(), Steady: e.lastSteady, R: e.lastR,
+		mv := machineView{ID: id, Kind: e.kind.String(), Mode: e.lastMode.String(), ModeDetail: e.modeWhy, Steady: e.lastSteady, R: e.lastR,
 			Time: e.last.Time, Quality: e.last.Quality.String(), Reasons: e.last.Reasons, Figures: map[string]figureView{},
 			Baseline: e.baseline, Deviation: map[string]float64{}, Inputs: e.inputs, InputProblems: e.inputWhy}
 		if mv.Reasons == nil {
