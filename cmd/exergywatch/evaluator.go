@@ -56,7 +56,9 @@ type evaluator struct {
 	lastGood   compute.Record
 	hasGood    bool
 	inputs     map[string]float64
-	inputWhy   map[string]string
+	// pendingDaily holds completed daily aggregates not yet written.
+	pendingDaily []compute.Record
+	inputWhy     map[string]string
 }
 
 func newEvaluator(cfg *config.Config, m *config.Machine, keys map[string]bool) (*evaluator, error) {
@@ -297,8 +299,52 @@ func (e *evaluator) updateTrends(now time.Time, rec *compute.Record, steadyNow b
 		}
 		_ = t.Add(now, f.Value)
 	}
-	eta, ok := figureValue(rec, machine.IsentropicEfficiency.RecordName())
-	_, _ = e.daily.Add(now, eta, ok && steadyNow)
+	name := machine.IsentropicEfficiency.RecordName()
+	eta, ok := figureValue(rec, name)
+	days, err := e.daily.Add(now, eta, ok && steadyNow)
+	if err != nil {
+		return
+	}
+	for _, d := range days {
+		e.pendingDaily = append(e.pendingDaily, e.dailyRecord(d))
+	}
+}
+
+// Daily aggregate series names.
+const (
+	dailySuffixMean   = "_daily_mean"
+	dailySuffixMedian = "_daily_median"
+	dailySuffixMin    = "_daily_min"
+	dailySuffixMax    = "_daily_max"
+	dailyCoverage     = "steady_coverage_daily"
+	reasonDaily       = "daily_aggregate"
+)
+
+// dailyRecord is the record of one completed local day: statistics of the
+// steady isentropic efficiency and the share of the day the machine was
+// running and steady. Its time is the end of the day.
+func (e *evaluator) dailyRecord(d trend.Day) compute.Record {
+	name := machine.IsentropicEfficiency.RecordName()
+	rec := compute.Record{Time: d.End.UTC(), Site: e.site, Machine: e.id, MachineKind: e.kind.String(),
+		Quality: compute.QualityGood, Reasons: []string{reasonDaily}}
+	rec.Figures = append(rec.Figures, compute.Figure{Name: dailyCoverage, Value: d.SteadyCoverage, Quality: compute.QualityGood})
+	if d.N == 0 {
+		return rec
+	}
+	for _, f := range []struct {
+		suffix string
+		v      float64
+	}{{dailySuffixMean, d.Mean}, {dailySuffixMedian, d.Median}, {dailySuffixMin, d.Min}, {dailySuffixMax, d.Max}} {
+		rec.Figures = append(rec.Figures, compute.Figure{Name: name + f.suffix, Value: f.v, Quality: compute.QualityGood})
+	}
+	return rec
+}
+
+// takeDaily returns and clears the daily records completed so far.
+func (e *evaluator) takeDaily() []compute.Record {
+	out := e.pendingDaily
+	e.pendingDaily = nil
+	return out
 }
 
 func figureValue(rec *compute.Record, name string) (float64, bool) {

@@ -314,7 +314,13 @@ func (p *pipeline) evaluateBatch(ctx context.Context, batch []*align.Snapshot) {
 		}
 		p.mu.Lock()
 		rec, events := e.evaluate(s)
+		daily := e.takeDaily()
 		p.mu.Unlock()
+		for _, d := range daily {
+			if err := p.multi.WriteRecord(context.WithoutCancel(ctx), d); err != nil {
+				p.sinkErrors.Add(1)
+			}
+		}
 		p.evaluated.Add(1)
 		p.lastTick.Store(s.At.UnixNano())
 		if err := p.multi.WriteRecord(context.WithoutCancel(ctx), rec); err != nil {

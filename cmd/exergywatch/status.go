@@ -16,6 +16,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
 	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/compute/trend"
 	"github.com/exergywatch/exergywatch/sinks"
 )
 
@@ -133,6 +134,7 @@ type machineView struct {
 	Baseline      map[string]float64    `json:"baseline,omitempty"`
 	Deviation     map[string]float64    `json:"deviation_from_baseline,omitempty"`
 	LastGoodTime  *time.Time            `json:"last_good_time,omitempty"`
+	Today         *trend.Day            `json:"today,omitempty"`
 	Inputs        map[string]float64    `json:"inputs_si"`
 	InputProblems map[string]string     `json:"input_problems,omitempty"`
 }
@@ -192,6 +194,9 @@ func (p *pipeline) status() statusView {
 			if b, ok := e.baseline[f.Name]; ok && fv.Value != nil {
 				mv.Deviation[f.Name] = *fv.Value - b
 			}
+		}
+		if d, ok := e.daily.Current(); ok {
+			mv.Today = &d
 		}
 		if e.hasGood {
 			t := e.lastGood.Time
