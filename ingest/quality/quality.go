@@ -37,7 +37,7 @@ type Checker struct {
 	hist    []float64 // ring of recent values for the Hampel filter
 	histPos int
 	histN   int
-	scratch []float64
+	sorted  []float64 // the same values, sorted
 
 	hasLast  bool
 	lastT    time.Time // newest sample time (any quality)
@@ -58,7 +58,7 @@ func New(p Params) *Checker {
 	c := &Checker{P: p}
 	if p.SpikeWindow >= 3 {
 		c.hist = make([]float64, p.SpikeWindow)
-		c.scratch = make([]float64, p.SpikeWindow)
+		c.sorted = make([]float64, 0, p.SpikeWindow)
 	}
 	return c
 }
@@ -109,11 +109,14 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 	// The Hampel history takes every in-range value, also spikes, so that a
 	// genuine step becomes the new median after half a window.
 	if c.hist != nil && !rs.Has(ingest.ReasonOutOfRange) {
-		c.hist[c.histPos] = v
-		c.histPos = (c.histPos + 1) % len(c.hist)
-		if c.histN < len(c.hist) {
+		if c.histN == len(c.hist) {
+			c.sorted = removeSorted(c.sorted, c.hist[c.histPos])
+		} else {
 			c.histN++
 		}
+		c.sorted = insertSorted(c.sorted, v)
+		c.hist[c.histPos] = v
+		c.histPos = (c.histPos + 1) % len(c.hist)
 	}
 	if !inOrder {
 		return use, rs
@@ -132,23 +135,51 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 	return use, rs
 }
 
+// medianMAD returns the median of the window and the median absolute
+// deviation from it, in O(n) from the sorted window: the deviations left
+// and right of the median are each sorted, so a merge finds their median.
 func (c *Checker) medianMAD() (float64, float64) {
-	s := c.scratch[:c.histN]
-	copy(s, c.hist[:c.histN])
-	med := median(s)
-	for i := range s {
-		s[i] = math.Abs(s[i] - med)
+	s := c.sorted
+	n := len(s)
+	med := s[n/2]
+	if n%2 == 0 {
+		med = (s[n/2-1] + s[n/2]) / 2
 	}
-	return med, median(s)
+	// Merge the deviations med-s[i] (i = mid-1 down to 0) and s[j]-med
+	// (j = mid up to n-1), both increasing, up to the middle element(s).
+	i, j := n/2-1, n/2
+	var prev, cur float64
+	for k := 0; k <= n/2; k++ {
+		prev = cur
+		if j >= n || (i >= 0 && med-s[i] <= s[j]-med) {
+			cur = med - s[i]
+			i--
+		} else {
+			cur = s[j] - med
+			j++
+		}
+	}
+	if n%2 == 1 {
+		return med, cur
+	}
+	return med, (prev + cur) / 2
 }
 
-func median(s []float64) float64 {
-	sort.Float64s(s)
-	n := len(s)
-	if n%2 == 1 {
-		return s[n/2]
+func insertSorted(s []float64, v float64) []float64 {
+	k := sort.SearchFloat64s(s, v)
+	s = append(s, 0)
+	copy(s[k+1:], s[k:])
+	s[k] = v
+	return s
+}
+
+func removeSorted(s []float64, v float64) []float64 {
+	k := sort.SearchFloat64s(s, v)
+	if k < len(s) && s[k] == v {
+		copy(s[k:], s[k+1:])
+		s = s[:len(s)-1]
 	}
-	return (s[n/2-1] + s[n/2]) / 2
+	return s
 }
 
 // AtEvaluation returns the reasons that hold at evaluation time now: stale

@@ -2,6 +2,7 @@ package quality
 
 import (
 	"math"
+	"sort"
 	"testing"
 	"time"
 
@@ -105,4 +106,41 @@ func TestAtEvaluation(t *testing.T) {
 		// 1/Φ⁻¹(0.75), Φ⁻¹(0.75) = 0.6744897501960817 (standard normal quantile, from memory).
 		t.Fatal("Hampel scale")
 	}
+}
+
+// FuzzMedianMAD checks the incremental median/MAD against sorting (the
+// definition) for arbitrary windows.
+func FuzzMedianMAD(f *testing.F) {
+	f.Add(5, 1.0, 2.0, 3.0, 10.0, -4.0, 0.5)
+	f.Add(4, 0.0, 0.0, 0.0, 1.0, 1.0, 1.0)
+	f.Fuzz(func(t *testing.T, w int, a, b, c, d, e, g float64) {
+		w = 3 + (w%6+6)%6
+		ch := New(Params{SpikeWindow: w})
+		vals := []float64{a, b, c, d, e, g, a + 1, b * 2}
+		for i, v := range vals {
+			if math.IsNaN(v) || math.IsInf(v, 0) || math.Abs(v) > 1e150 {
+				return
+			}
+			ch.Check(t0.Add(time.Duration(i)*time.Second), v, ingest.Good, true)
+		}
+		win := append([]float64(nil), ch.hist[:ch.histN]...)
+		sort.Float64s(win)
+		med := win[len(win)/2]
+		if len(win)%2 == 0 {
+			med = (win[len(win)/2-1] + win[len(win)/2]) / 2
+		}
+		dev := make([]float64, len(win))
+		for i := range win {
+			dev[i] = math.Abs(win[i] - med)
+		}
+		sort.Float64s(dev)
+		mad := dev[len(dev)/2]
+		if len(dev)%2 == 0 {
+			mad = (dev[len(dev)/2-1] + dev[len(dev)/2]) / 2
+		}
+		gm, gd := ch.medianMAD()
+		if gm != med || math.Abs(gd-mad) > 1e-12*math.Max(1, mad) {
+			t.Fatalf("window %v: got median %v MAD %v, want %v %v", win, gm, gd, med, mad)
+		}
+	})
 }
