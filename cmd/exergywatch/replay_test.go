@@ -22,6 +22,7 @@ import (
 	"github.com/exergywatch/exergywatch/config"
 	"github.com/exergywatch/exergywatch/config/units"
 	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/align"
 	"github.com/exergywatch/exergywatch/sinks/store"
 	"github.com/exergywatch/exergywatch/thermo/fluids"
 )
@@ -592,6 +593,15 @@ func (s *synthPlant) next() (ingest.Sample, bool, error) {
 	return ingest.Sample{Tag: tag.Name, SourceTime: t, ReceiveTime: t, Value: v}, true, nil
 }
 
+// nextTime is the time of the sample next returns; false at the end.
+func (s *synthPlant) nextTime() (time.Time, bool) {
+	if s.j == len(s.tags) {
+		s.j = 0
+		s.i++
+	}
+	return s.start.Add(time.Duration(s.i) * s.step), s.i < s.steps
+}
+
 func (s *synthPlant) progress() float64 { return float64(s.i) / float64(s.steps) }
 
 // BenchmarkReplay replays 1-minute data of 4 plant copies (24 machines,
@@ -609,12 +619,13 @@ func BenchmarkReplay(b *testing.B) {
 		d    time.Duration
 	}{{"day", 24 * time.Hour}, {"week", 7 * 24 * time.Hour}, {"year", 365 * 24 * time.Hour}} {
 		var sp *synthPlant
-		for _, sink := range []string{"nosink", "store"} {
+		for _, sink := range []string{"nosink", "store", "store-bulk"} {
 			b.Run(span.name+"/"+sink, func(b *testing.B) {
 				if sp == nil {
 					sp = newSynthPlant(b, yearOptions(start, 4), time.Minute, span.d, time.Hour)
 				}
 				var res replayResult
+				cpu0 := cpuTime()
 				for b.Loop() {
 					b.StopTimer()
 					dir := b.TempDir()
@@ -622,8 +633,11 @@ func BenchmarkReplay(b *testing.B) {
 					if err != nil {
 						b.Fatal(err)
 					}
-					if sink == "nosink" {
+					switch sink {
+					case "nosink":
 						cfg.Sinks = nil
+					case "store-bulk":
+						bulkLoad(cfg)
 					}
 					p, err := buildPipeline(cfg, pipelineOptions{})
 					if err != nil {
@@ -643,6 +657,7 @@ func BenchmarkReplay(b *testing.B) {
 				if res.SinkDrops > 0 {
 					b.Fatalf("%d records dropped by sinks", res.SinkDrops)
 				}
+				b.ReportMetric((cpuTime()-cpu0).Seconds()/float64(b.N), "cpu-s/op")
 				secs := b.Elapsed().Seconds() / float64(b.N)
 				b.ReportMetric(float64(res.Samples)/secs, "samples/s")
 				b.ReportMetric(float64(res.Evaluations)/secs, "evals/s")
@@ -684,4 +699,71 @@ func TestSynthPlantNoise(t *testing.T) {
 			t.Errorf("%s: noise sd %.4g, want %.4g", tg.Name, sd, tg.Noise)
 		}
 	}
+}
+
+// BenchmarkEvaluateMachine: the cost of one evaluation (evaluator.evaluate:
+// mode, steady state, machine model with U95, alerts, trends) per machine of
+// the plant, on 1-minute snapshots of the synthetic year data; this is where
+// a replay spends its time.
+func BenchmarkEvaluateMachine(b *testing.B) {
+	start := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC)
+	const ticks = 240
+	sp := newSynthPlant(b, yearOptions(start, 1), time.Minute, ticks*time.Minute, time.Hour)
+	cfg, err := config.Load(replayConfig(b, b.TempDir(), 1, time.Minute, time.Minute))
+	if err != nil {
+		b.Fatal(err)
+	}
+	cfg.Sinks = nil
+	p, err := buildPipeline(cfg, pipelineOptions{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer p.close()
+	snaps := map[string][]*align.Snapshot{}
+	var batch []ingest.Sample
+	for k := 1; k <= ticks; k++ {
+		tick := start.Add(time.Duration(k) * time.Minute)
+		batch = batch[:0]
+		for {
+			at, more := sp.nextTime()
+			if !more || at.After(tick) {
+				break
+			}
+			s, _, _ := sp.next()
+			batch = append(batch, s)
+		}
+		p.engine.Ingest(batch, tick)
+		for _, s := range p.engine.Evaluate(tick) {
+			snaps[s.Machine] = append(snaps[s.Machine], s)
+		}
+	}
+	for _, id := range p.order {
+		b.Run(id, func(b *testing.B) {
+			ss := snaps[id]
+			i := 0
+			for b.Loop() {
+				if i == len(ss) {
+					b.StopTimer()
+					e, err := newEvaluator(cfg, &cfg.Machines[slicesIndex(cfg, id)], cfg.Keys()[id])
+					if err != nil {
+						b.Fatal(err)
+					}
+					p.evals[id] = e
+					i = 0
+					b.StartTimer()
+				}
+				p.evals[id].evaluate(ss[i])
+				i++
+			}
+		})
+	}
+}
+
+func slicesIndex(cfg *config.Config, id string) int {
+	for i := range cfg.Machines {
+		if cfg.Machines[i].ID == id {
+			return i
+		}
+	}
+	return -1
 }
