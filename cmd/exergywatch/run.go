@@ -96,7 +96,7 @@ func cmdRun(args []string, stdout, stderr io.Writer) int {
 	defer stop()
 	hup := make(chan os.Signal, 1)
 	signal.Notify(hup, syscall.SIGHUP)
-	defer signal.Stop(hup)
+	defer func() { signal.Stop(hup); close(hup) }() // ends the forwarding goroutine below
 	reload := make(chan struct{}, 1)
 	go func() {
 		for range hup {
