@@ -9,17 +9,16 @@ package main
 // machine.
 
 import (
-	"context"
 	"encoding/json"
-	"errors"
-	"fmt"
+	"io"
+	"log/slog"
 	"math"
 	"net"
 	"net/http"
 	"os"
+	"os/signal"
 	"path/filepath"
 	"slices"
-	"sort"
 	"strings"
 	"sync"
 	"syscall"
@@ -27,11 +26,10 @@ import (
 	"time"
 
 	"github.com/nats-io/nats.go"
+	"go.uber.org/goleak"
 
-	"github.com/exergywatch/exergywatch/cmd/exergywatch/internal/plantsim"
 	"github.com/exergywatch/exergywatch/compute"
 	"github.com/exergywatch/exergywatch/config"
-	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/sinks"
 	"github.com/exergywatch/exergywatch/sinks/vmtest"
 )
@@ -337,19 +335,674 @@ func diffMS(want, got []int64) (missing, extra []int64) {
 
 func head(x []int64) []int64 { return x[:min(3, len(x))] }
 
-var (
-	_ = context.Background
-	_ = json.Marshal
-	_ = errors.New
-	_ = fmt.Sprint
-	_ = net.Dial
-	_ = http.Get
-	_ = os.Getpid
-	_ = sort.Strings
-	_ = sync.Mutex{}
-	_ = syscall.SIGTERM
-	_ = nats.Connect
-	_ plantsim.Options
-	_ = ingest.ReasonStale
-	_ sinks.Stats
-)
+// firingTree is fastTree with alwaysFiringRule on the air compressor.
+func firingTree(t testing.TB, natsURL, dir string) tree {
+	tr := fastTree(t, natsURL, dir)
+	ac := tr.machine(t, "air-compressor")
+	ac["alerts"] = append(ac["alerts"].([]any), alwaysFiringRule())
+	return tr
+}
+
+func (d *daemon) firstFiring(machine, rule string) (compute.Event, bool) {
+	_, evs := d.snapshot()
+	f := firings(evs, machine, rule)
+	if len(f) == 0 {
+		return compute.Event{}, false
+	}
+	return f[0], true
+}
+
+// activeAlert returns the active alert of machine/rule from /status.
+func activeAlert(s statusDoc, machine, rule string) (state string, since time.Time, ok bool) {
+	for _, a := range s.Alerts {
+		if a.Machine == machine && a.Rule == rule {
+			return a.State, a.Since, true
+		}
+	}
+	return "", time.Time{}, false
+}
+
+const reloadOK = "exergywatch_config_last_reload_successful"
+
+// TestReloadAllOrNothing (c): reloads through runDaemon's reload channel,
+// with a load function that re-reads the file. valid -> invalid YAML (an
+// unknown key) -> valid YAML that cannot start (an InfluxDB token variable
+// that is not set) -> a change of a setting that needs a restart
+// (state.path) -> valid with one machine fewer. The reload gauge goes
+// 1 -> 0 -> 0 -> 0 -> 1; after each refusal the running configuration keeps
+// evaluating; the firing alert keeps its state and its start time through
+// every pipeline restart and fires only once.
+func TestReloadAllOrNothing(t *testing.T) {
+	t.Parallel()
+	ns := startNATS(t, false)
+	defer stopNATS(ns)
+	dir := t.TempDir()
+	cfgPath := firingTree(t, ns.ClientURL(), dir).write(t, dir, "exergywatch.yaml")
+	valid1, err := os.ReadFile(cfgPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, nil)
+	defer f.stop()
+	logs := newLogCapture()
+	reload := make(chan struct{}) // unbuffered: a send returns once runDaemon took it
+	d := startDaemon(t, cfgPath, reload, pipelineOptions{log: slog.New(logs)})
+	defer d.stop()
+
+	waitFor(t, 30*time.Second, "the test rule to fire", func() bool { _, ok := d.firstFiring("air-compressor", "below-95"); return ok }, d.summary)
+	fired, _ := d.firstFiring("air-compressor", "below-95")
+	if g := d.metrics()[reloadOK]; g != 1 {
+		t.Fatalf("%s = %v after start, want 1", reloadOK, g)
+	}
+	okTime := d.metrics()["exergywatch_config_last_reload_success_timestamp_seconds"]
+
+	evaluations := func() float64 { return d.metrics()["exergywatch_compute_evaluations_total"] }
+	stillRunning := func(step string, machines int) {
+		t.Helper()
+		e0 := evaluations()
+		waitFor(t, 10*time.Second, step+": evaluations continue", func() bool { return evaluations() >= e0+float64(3*machines) })
+		if code, _ := d.get("/readyz"); code != http.StatusOK {
+			t.Errorf("%s: /readyz %d", step, code)
+		}
+		s := d.statusJSON()
+		if len(s.Machines) != machines {
+			t.Errorf("%s: /status lists %d machines, want %d", step, len(s.Machines), machines)
+		}
+		state, since, ok := activeAlert(s, "air-compressor", "below-95")
+		if !ok || state != "firing" || !since.Equal(fired.Since) {
+			t.Errorf("%s: alert below-95 is %q since %v (listed %v), want firing since %v", step, state, since, ok, fired.Since)
+		}
+	}
+	stillRunning("before any reload", 6)
+
+	// 1. Invalid YAML: refused, the running pipeline is untouched.
+	p0 := d.st.cur.Load()
+	bad := append(append([]byte(nil), valid1...), []byte("\nunknown_section: {x: 1}\n")...)
+	if err := os.WriteFile(cfgPath, bad, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := config.Load(cfgPath); err == nil {
+		t.Fatal("the invalid file loads; the test is wrong")
+	}
+	reload <- struct{}{}
+	waitFor(t, 10*time.Second, "reload gauge 0 after invalid YAML", func() bool { return d.metrics()[reloadOK] == 0 })
+	if d.st.cur.Load() != p0 {
+		t.Error("an invalid file replaced the running pipeline")
+	}
+	stillRunning("after invalid YAML", 6)
+
+	// 2. Valid file whose sink cannot open: the old configuration starts again.
+	os.Unsetenv("EXW_TEST_TOKEN_NOT_SET")
+	tr := firingTree(t, ns.ClientURL(), dir)
+	sink := influxSink("http://127.0.0.1:9", filepath.Join(dir, "spool"))
+	sink["influxdb"].(map[string]any)["token_env"] = "EXW_TEST_TOKEN_NOT_SET"
+	tr.addSink(sink)
+	tr.write(t, dir, "exergywatch.yaml")
+	reload <- struct{}{}
+	waitFor(t, 15*time.Second, "the previous configuration to be started again", func() bool { return d.st.cur.Load() != p0 })
+	if g := d.metrics()[reloadOK]; g != 0 {
+		t.Errorf("%s = %v after a configuration that cannot start, want 0", reloadOK, g)
+	}
+	if n := logs.count("new configuration could not start; the previous one is started again"); n != 1 {
+		t.Errorf("%d log lines report the failed start, want 1", n)
+	}
+	stillRunning("after a configuration that cannot start", 6)
+
+	// 3. A setting that needs a restart: refused.
+	p1 := d.st.cur.Load()
+	tr = firingTree(t, ns.ClientURL(), dir)
+	tr.set(t, "state.path", filepath.Join(dir, "other-state.db"))
+	tr.write(t, dir, "exergywatch.yaml")
+	refused := logs.count("configuration reload refused")
+	reload <- struct{}{}
+	waitFor(t, 10*time.Second, "the refusal of a state.path change", func() bool { return logs.count("configuration reload refused") == refused+1 })
+	if !strings.Contains(logs.all(), "state.path cannot change while running") {
+		t.Error("the refusal does not name state.path")
+	}
+	if d.st.cur.Load() != p1 {
+		t.Error("a refused change replaced the running pipeline")
+	}
+	stillRunning("after a refused state.path change", 6)
+
+	// 4. Valid, one machine fewer: applied.
+	tr = firingTree(t, ns.ClientURL(), dir)
+	tr.dropMachine(t, "lp-turbine")
+	tr.write(t, dir, "exergywatch.yaml")
+	reloadAt := time.Now()
+	reload <- struct{}{}
+	waitFor(t, 15*time.Second, "reload gauge 1 after a valid file", func() bool { return d.metrics()[reloadOK] == 1 })
+	if ts := d.metrics()["exergywatch_config_last_reload_success_timestamp_seconds"]; ts <= okTime {
+		t.Errorf("reload success timestamp %v did not advance past %v", ts, okTime)
+	}
+	stillRunning("after a valid reload", 5)
+	waitFor(t, 15*time.Second, "steady air-compressor records after the reload", func() bool {
+		return d.countWhere("air-compressor", func(r compute.Record) bool {
+			return r.Time.After(reloadAt) && (r.Quality == compute.QualityGood || r.Quality == compute.QualityUncertain)
+		}) >= 5
+	})
+	if n := d.countWhere("lp-turbine", func(r compute.Record) bool { return r.Time.After(reloadAt.Add(time.Second)) }); n != 0 {
+		t.Errorf("%d lp-turbine records after it was removed", n)
+	}
+	if err := d.stop(); err != nil {
+		t.Fatalf("daemon stopped with %v", err)
+	}
+	_, evs := d.snapshot()
+	if n := len(firings(evs, "air-compressor", "below-95")); n != 1 {
+		t.Errorf("the rule fired %d times across four reloads, want once", n)
+	}
+	_, stored := readStore(t, filepath.Join(dir, "history.db"))
+	if n := len(firings(stored, "air-compressor", "below-95")); n != 1 {
+		t.Errorf("the store holds %d firing events, want 1", n)
+	}
+}
+
+// TestRestartKeepsAlertState (d): a rule fires, the daemon stops, a new
+// daemon starts on the same state file: the rule is firing from the first
+// status answer on, with its original start time, and no second firing
+// event is raised while it keeps seeing the condition.
+func TestRestartKeepsAlertState(t *testing.T) {
+	t.Parallel()
+	ns := startNATS(t, false)
+	defer stopNATS(ns)
+	dir := t.TempDir()
+	cfgPath := firingTree(t, ns.ClientURL(), dir).write(t, dir, "exergywatch.yaml")
+	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, nil)
+	defer f.stop()
+
+	d1 := startDaemon(t, cfgPath, nil, pipelineOptions{})
+	waitFor(t, 30*time.Second, "the test rule to fire", func() bool { _, ok := d1.firstFiring("air-compressor", "below-95"); return ok }, d1.summary)
+	fired, _ := d1.firstFiring("air-compressor", "below-95")
+	time.Sleep(time.Second)
+	if err := d1.stop(); err != nil {
+		t.Fatal(err)
+	}
+
+	d2 := startDaemon(t, cfgPath, nil, pipelineOptions{})
+	defer d2.stop()
+	waitFor(t, 10*time.Second, "/status", func() bool { code, _ := d2.get("/status"); return code == http.StatusOK })
+	state, since, ok := activeAlert(d2.statusJSON(), "air-compressor", "below-95")
+	if !ok || state != "firing" || !since.Equal(fired.Since) {
+		t.Errorf("after restart the alert is %q since %v (listed %v), want firing since %v", state, since, ok, fired.Since)
+	}
+	start2 := time.Now()
+	waitFor(t, 20*time.Second, "10 steady air-compressor records after the restart", func() bool {
+		return d2.countWhere("air-compressor", func(r compute.Record) bool {
+			return r.Quality == compute.QualityGood || r.Quality == compute.QualityUncertain
+		}) >= 10
+	}, d2.summary)
+	// The rule kept seeing its condition (efficiency below 0.95) in run 2.
+	recs2, _ := d2.snapshot()
+	if v, ok := figureValue(&recs2[len(recs2)-1], "isentropic_efficiency"); ok && v >= 0.95 {
+		t.Fatalf("efficiency %v: the condition no longer holds, the test proves nothing", v)
+	}
+	if err := d2.stop(); err != nil {
+		t.Fatal(err)
+	}
+	_, ev2 := d2.snapshot()
+	for _, e := range ev2 {
+		if e.Rule == "below-95" {
+			t.Errorf("run 2 raised %s -> %s at %v (%s)", e.From, e.To, e.Time, e.Reason)
+		}
+	}
+	_, stored := readStore(t, filepath.Join(dir, "history.db"))
+	if n := len(firings(stored, "air-compressor", "below-95")); n != 1 {
+		t.Errorf("the store holds %d firing events over both runs, want 1", n)
+	}
+	t.Logf("fired at %v; restarted at %v; still firing, no second event", fired.Time.Format("15:04:05.000"), start2.Format("15:04:05.000"))
+}
+
+// TestStatusEndpoints (e): /healthz, /readyz, /metrics (every family of
+// ours named exergywatch_*, the Go runtime and process collectors aside),
+// /status JSON (machines, active_alerts, the advisory note),
+// /status/alerts, and the listener bound to 127.0.0.1 — the default
+// address is loopback too.
+func TestStatusEndpoints(t *testing.T) {
+	t.Parallel()
+	ns := startNATS(t, false)
+	defer stopNATS(ns)
+	dir := t.TempDir()
+	cfgPath := firingTree(t, ns.ClientURL(), dir).write(t, dir, "exergywatch.yaml")
+	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, nil)
+	defer f.stop()
+	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
+	defer d.stop()
+
+	host, port, err := net.SplitHostPort(d.addr)
+	if err != nil || host != "127.0.0.1" {
+		t.Fatalf("status listens on %q, want 127.0.0.1", d.addr)
+	}
+	// The default, when the file says nothing, is loopback as well.
+	tr := firingTree(t, ns.ClientURL(), dir)
+	delete(tr, "status")
+	def, err := config.Load(tr.write(t, dir, "nostatus.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if h, _, _ := net.SplitHostPort(def.Status.Listen); h != "127.0.0.1" {
+		t.Errorf("default status.listen %q is not loopback", def.Status.Listen)
+	}
+	// Not reachable on any other address of this machine.
+	addrs, _ := net.InterfaceAddrs()
+	for _, a := range addrs {
+		ipn, ok := a.(*net.IPNet)
+		if !ok || ipn.IP.IsLoopback() {
+			continue
+		}
+		c, err := net.DialTimeout("tcp", net.JoinHostPort(ipn.IP.String(), port), time.Second)
+		if err == nil {
+			c.Close()
+			t.Errorf("status port reachable on %s", ipn.IP)
+		}
+	}
+
+	if code, body := d.get("/healthz"); code != http.StatusOK || body != "ok\n" {
+		t.Errorf("/healthz: %d %q", code, body)
+	}
+	waitFor(t, 10*time.Second, "/readyz 200", func() bool { code, _ := d.get("/readyz"); return code == http.StatusOK })
+	waitFor(t, 30*time.Second, "the test rule to fire", func() bool { _, ok := d.firstFiring("air-compressor", "below-95"); return ok }, d.summary)
+
+	m := d.metrics()
+	for k := range m {
+		n := metricName(k)
+		if !strings.HasPrefix(n, "exergywatch_") && !strings.HasPrefix(n, "go_") && !strings.HasPrefix(n, "process_") && !strings.HasPrefix(n, "promhttp_") {
+			t.Errorf("metric %s is not named exergywatch_*", n)
+		}
+	}
+	for _, want := range []struct {
+		key string
+		min float64
+	}{
+		{reloadOK, 1},
+		{"exergywatch_config_last_reload_success_timestamp_seconds", float64(time.Now().Add(-time.Minute).Unix())},
+		{"exergywatch_compute_evaluations_total", 6},
+		{"exergywatch_compute_alert_events_total", 1},
+		{"exergywatch_compute_last_tick_timestamp_seconds", float64(time.Now().Add(-time.Minute).Unix())},
+		{"exergywatch_ingest_received_samples_total", 34},
+		{"exergywatch_ingest_accepted_samples_total", 34},
+		{"exergywatch_ingest_snapshots_total", 6},
+		{`exergywatch_sink_written_total{sink="history"}`, 6},
+		{`exergywatch_sink_dropped_total{sink="history"}`, 0},
+	} {
+		v, ok := m[want.key]
+		if !ok || v < want.min {
+			t.Errorf("%s = %v (present %v), want >= %v", want.key, v, ok, want.min)
+		}
+	}
+	if v := m[`exergywatch_sink_dropped_total{sink="history"}`]; v != 0 {
+		t.Errorf("history sink dropped %v items", v)
+	}
+
+	s := d.statusJSON()
+	if s.Site != "quillmoor" || !strings.Contains(s.Advisory, "not a protection") {
+		t.Errorf("/status site %q advisory %q", s.Site, s.Advisory)
+	}
+	var ids []string
+	for _, mv := range s.Machines {
+		ids = append(ids, mv.ID)
+		if mv.Mode != "running" {
+			t.Errorf("machine %s mode %q, want running", mv.ID, mv.Mode)
+		}
+		f, ok := mv.Figures["isentropic_efficiency"]
+		if !ok || f.Value == nil || *f.Value <= 0.5 || *f.Value >= 1 {
+			t.Errorf("machine %s isentropic_efficiency %+v", mv.ID, f)
+		}
+		if len(mv.Inputs) == 0 {
+			t.Errorf("machine %s: no inputs_si", mv.ID)
+		}
+	}
+	if !slices.Equal(ids, demoMachines) {
+		t.Errorf("/status machines %v, want %v", ids, demoMachines)
+	}
+	if state, _, ok := activeAlert(s, "air-compressor", "below-95"); !ok || state != "firing" {
+		t.Errorf("/status active_alerts %+v: want below-95 firing", s.Alerts)
+	}
+	code, body := d.get("/status/alerts")
+	var av struct {
+		Advisory string `json:"advisory"`
+		Active   []struct {
+			Rule, State string
+		} `json:"active"`
+		// recent_events are compute.Event values encoded without JSON
+		// tags: Go field names, states as numbers (2 = firing).
+		Recent []struct {
+			Rule, Reason string
+			To           compute.AlertState
+		} `json:"recent_events"`
+	}
+	if code != http.StatusOK || json.Unmarshal([]byte(body), &av) != nil {
+		t.Fatalf("/status/alerts: %d %s", code, body)
+	}
+	found := false
+	for _, e := range av.Recent {
+		if e.Rule == "below-95" && e.To == compute.AlertFiring && strings.Contains(e.Reason, "always below 0.95") {
+			found = true
+		}
+	}
+	if !found || len(av.Active) == 0 || !strings.Contains(av.Advisory, "not a protection") {
+		t.Errorf("/status/alerts lacks the firing event with its reason and advice: %s", body)
+	}
+	if code, _ := d.get("/nothing-here"); code != http.StatusNotFound {
+		t.Errorf("unknown path: %d, want 404", code)
+	}
+	resp, err := d.http.Post("http://"+d.addr+"/status", "application/json", strings.NewReader("{}"))
+	if err == nil {
+		resp.Body.Close()
+		if resp.StatusCode != http.StatusMethodNotAllowed {
+			t.Errorf("POST /status: %d, want 405", resp.StatusCode)
+		}
+	}
+	if err := d.stop(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := d.http.Get("http://" + d.addr + "/healthz"); err == nil {
+		t.Error("status endpoint still answers after stop")
+	}
+}
+
+// freePort returns a loopback address that was free a moment ago (for
+// cmdRun, whose status address must be known before it starts).
+func freePort(t testing.TB) string {
+	t.Helper()
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer l.Close()
+	return l.Addr().String()
+}
+
+// natsWitness subscribes to the NATS sink's record subjects and keeps the
+// (machine, time) of every record it sees, decoded and validated with the
+// wire decoder.
+type natsWitness struct {
+	nc  *nats.Conn
+	sub *nats.Subscription
+	mu  sync.Mutex
+	got map[string]map[int64]bool
+	n   int
+	bad []string
+}
+
+func newNATSWitness(t testing.TB, url string) *natsWitness {
+	t.Helper()
+	nc, err := nats.Connect(url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := &natsWitness{nc: nc, got: map[string]map[int64]bool{}}
+	w.sub, err = nc.Subscribe("exergywatch.*.derived.>", func(m *nats.Msg) {
+		r, err := sinks.UnmarshalRecord(m.Data)
+		w.mu.Lock()
+		defer w.mu.Unlock()
+		if err != nil {
+			w.bad = append(w.bad, err.Error())
+			return
+		}
+		if w.got[r.Machine] == nil {
+			w.got[r.Machine] = map[int64]bool{}
+		}
+		w.got[r.Machine][r.Time.UnixNano()] = true
+		w.n++
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := nc.Flush(); err != nil {
+		t.Fatal(err)
+	}
+	return w
+}
+
+func (w *natsWitness) count() int {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.n
+}
+
+func (w *natsWitness) close() {
+	_ = w.sub.Unsubscribe()
+	w.nc.Close()
+}
+
+// TestRunStopsCleanly (f): around two full run/stop cycles no goroutine is
+// left behind (go.uber.org/goleak), and stopping drains and flushes: no
+// record is missing from the store afterwards.
+//
+//   - runDaemon stopped by cancelling its context: every record the
+//     pipeline produced (seen through the onRecord hook) is in the store.
+//   - `exergywatch run -c FILE` through dispatch, reloaded with a real
+//     SIGHUP (invalid file: reload gauge 0; valid again: 1) and stopped with
+//     a real SIGTERM: exit status 0, and every record the NATS sink
+//     published is in the store.
+//
+// Not parallel: it sends signals to the test process and counts goroutines.
+func TestRunStopsCleanly(t *testing.T) {
+	vm := vmtest.StartServer(t) // its process watcher lives until the test's cleanup
+	// os/signal starts its watcher goroutine once per process; start it
+	// before the leak baseline.
+	c := make(chan os.Signal, 1)
+	signal.Notify(c, syscall.SIGUSR2)
+	signal.Stop(c)
+	defer goleak.VerifyNone(t, goleak.IgnoreCurrent())
+
+	ns := startNATS(t, false)
+	defer stopNATS(ns)
+	dir := t.TempDir()
+	tr := fastTree(t, ns.ClientURL(), dir)
+	tr.addSink(influxSink(vm.URL, filepath.Join(dir, "spool")))
+	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"url": ns.ClientURL()}})
+	listen := freePort(t)
+	tr.set(t, "status.listen", listen)
+	cfgPath := tr.write(t, dir, "exergywatch.yaml")
+	valid, _ := os.ReadFile(cfgPath)
+	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, nil)
+	defer f.stop()
+	storePath := filepath.Join(dir, "history.db")
+
+	// Cycle 1: runDaemon, context cancelled.
+	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
+	waitFor(t, 30*time.Second, "10 running records of every machine", func() bool {
+		for _, m := range demoMachines {
+			if d.countWhere(m, usable) < 10 {
+				return false
+			}
+		}
+		return true
+	}, d.summary)
+	if err := d.stop(); err != nil {
+		t.Fatalf("runDaemon returned %v", err)
+	}
+	d.http.CloseIdleConnections()
+	seen, _ := d.snapshot()
+	stored, _ := readStore(t, storePath)
+	inStore := map[string]map[int64]bool{}
+	nStored := 0
+	for m, rs := range stored {
+		inStore[m] = map[int64]bool{}
+		for _, r := range rs {
+			inStore[m][r.Time.UnixNano()] = true
+			nStored++
+		}
+	}
+	var end1 time.Time
+	for _, r := range seen {
+		if !inStore[r.Machine][r.Time.UnixNano()] {
+			t.Errorf("cycle 1: record %s missing from the store after stop", describeRecord(r))
+		}
+		if r.Time.After(end1) {
+			end1 = r.Time
+		}
+	}
+	if nStored != len(seen) {
+		t.Errorf("cycle 1: store holds %d records, the pipeline produced %d", nStored, len(seen))
+	}
+	t.Logf("cycle 1: %d records produced, all in the store", len(seen))
+
+	// Cycle 2: exergywatch run, SIGHUP, SIGTERM.
+	w := newNATSWitness(t, ns.ClientURL())
+	var out, errOut syncBuffer
+	exit := make(chan int, 1)
+	go func() { exit <- dispatch([]string{"run", "-c", cfgPath, "--log-format", "json"}, &out, &errOut) }()
+	hc := &http.Client{Timeout: 5 * time.Second, Transport: &http.Transport{DisableKeepAlives: true}}
+	get := func(path string) (int, string) {
+		resp, err := hc.Get("http://" + listen + path)
+		if err != nil {
+			return 0, ""
+		}
+		defer resp.Body.Close()
+		b, _ := io.ReadAll(resp.Body)
+		return resp.StatusCode, string(b)
+	}
+	waitFor(t, 20*time.Second, "exergywatch run to answer /healthz", func() bool {
+		select {
+		case code := <-exit:
+			t.Fatalf("exergywatch run exited with %d: %s", code, errOut.String())
+		default:
+		}
+		code, body := get("/healthz")
+		return code == http.StatusOK && body == "ok\n"
+	})
+	// The signal handlers are installed before the status server starts.
+	gauge := func() float64 {
+		_, body := get("/metrics")
+		return parseMetrics(t, body)[reloadOK]
+	}
+	waitFor(t, 20*time.Second, "records on the NATS sink", func() bool { return w.count() >= 30 })
+	if err := os.WriteFile(cfgPath, append(append([]byte(nil), valid...), "\nsurplus: 1\n"...), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if err := syscall.Kill(os.Getpid(), syscall.SIGHUP); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, 10*time.Second, "reload gauge 0 after SIGHUP with an invalid file", func() bool { return gauge() == 0 })
+	if err := os.WriteFile(cfgPath, valid, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if err := syscall.Kill(os.Getpid(), syscall.SIGHUP); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, 15*time.Second, "reload gauge 1 after SIGHUP with the valid file", func() bool { return gauge() == 1 })
+	n0 := w.count()
+	waitFor(t, 20*time.Second, "records after the reload", func() bool { return w.count() >= n0+30 })
+	if err := syscall.Kill(os.Getpid(), syscall.SIGTERM); err != nil {
+		t.Fatal(err)
+	}
+	select {
+	case code := <-exit:
+		if code != 0 {
+			t.Errorf("exergywatch run exited with %d after SIGTERM: %s", code, errOut.String())
+		}
+	case <-time.After(60 * time.Second):
+		t.Fatal("exergywatch run did not exit within 60 s of SIGTERM")
+	}
+	hc.CloseIdleConnections()
+	// Let the last NATS messages reach the witness.
+	_ = w.nc.Flush()
+	time.Sleep(200 * time.Millisecond)
+	w.close()
+	if len(w.bad) > 0 {
+		t.Errorf("NATS sink published %d undecodable records, first: %s", len(w.bad), w.bad[0])
+	}
+	stored, _ = readStore(t, storePath)
+	n2 := 0
+	for m, rs := range stored {
+		inStore[m] = map[int64]bool{}
+		for _, r := range rs {
+			inStore[m][r.Time.UnixNano()] = true
+			if r.Time.After(end1) {
+				n2++
+			}
+		}
+	}
+	missing := 0
+	for m, ts := range w.got {
+		for ns := range ts {
+			if !inStore[m][ns] {
+				missing++
+			}
+		}
+	}
+	if missing > 0 || n2 != w.count() {
+		t.Errorf("cycle 2: %d records published on NATS, %d stored, %d published but not stored", w.count(), n2, missing)
+	}
+	for _, want := range []string{`"msg":"configuration reload refused; the running configuration is kept"`, `"msg":"configuration reloaded"`, `"msg":"exergywatch stopped; sinks flushed"`} {
+		if !strings.Contains(errOut.String(), want) {
+			t.Errorf("log lacks %s", want)
+		}
+	}
+	t.Logf("cycle 2: %d records published on NATS, all in the store after SIGTERM", w.count())
+	f.stop()
+}
+
+// syncBuffer is a bytes.Buffer safe for the daemon's log writer and the test.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  strings.Builder
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
+
+// scriptClock returns scripted times (offsets from base), then keeps
+// stepping by step.
+type scriptClock struct {
+	mu     sync.Mutex
+	base   time.Time
+	script []time.Duration
+	step   time.Duration
+	i      int
+}
+
+func (c *scriptClock) Now() time.Time {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	i := c.i
+	c.i++
+	if i < len(c.script) {
+		return c.base.Add(c.script[i])
+	}
+	last := c.script[len(c.script)-1]
+	return c.base.Add(last + time.Duration(i-len(c.script)+1)*c.step)
+}
+
+// TestTickTimesStrictlyIncrease: the evaluation ticker stamps each tick
+// with clock.Now().Truncate(interval). When the ticker's phase lies just
+// before an interval boundary, scheduling delay spreads successive wake-ups
+// across the boundary and two ticks truncate to the same time: the clock
+// below reads 0.196 s, 0.405 s, 0.596 s (one 9 ms late wake-up), which
+// gives ticks at 0.0, 0.4, 0.4. Two records of one machine then carry the
+// same time: the store keeps one (same key), the TSDB gets both, the
+// steady-state filter and the alert hold times see a zero time step. Each
+// tick time must be later than the previous one.
+func TestTickTimesStrictlyIncrease(t *testing.T) {
+	t.Parallel()
+	dir := t.TempDir()
+	tr := fastTree(t, "nats://127.0.0.1:1", dir)
+	tr["sources"] = []any{}
+	cfgPath := tr.write(t, dir, "exergywatch.yaml")
+	base := time.Now().Truncate(time.Second).Add(-time.Minute)
+	clk := &scriptClock{base: base, step: 200 * time.Millisecond,
+		script: []time.Duration{196 * time.Millisecond, 405 * time.Millisecond, 596 * time.Millisecond, 796 * time.Millisecond}}
+	d := startDaemon(t, cfgPath, nil, pipelineOptions{clock: clk})
+	waitFor(t, 10*time.Second, "6 ticks", func() bool { return d.countWhere("air-compressor", func(compute.Record) bool { return true }) >= 6 })
+	if err := d.stop(); err != nil {
+		t.Fatal(err)
+	}
+	recs, _ := d.snapshot()
+	last := map[string]time.Time{}
+	for _, r := range recs {
+		if p, ok := last[r.Machine]; ok && !r.Time.After(p) {
+			t.Errorf("%s: record at %v follows one at %v: tick times must increase", r.Machine, r.Time.Sub(base), p.Sub(base))
+		}
+		last[r.Machine] = r.Time
+	}
+}

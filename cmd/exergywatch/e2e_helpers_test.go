@@ -796,3 +796,56 @@ func exportSettled(t testing.TB, vm *vmtest.Server, match string, want int) []vm
 		time.Sleep(250 * time.Millisecond)
 	}
 }
+
+// logCapture is a slog handler that keeps every message (with its
+// attributes as text), so tests can check what the daemon reported.
+type logCapture struct {
+	mu    *sync.Mutex
+	lines *[]string
+	attrs string
+}
+
+func newLogCapture() *logCapture {
+	return &logCapture{mu: &sync.Mutex{}, lines: new([]string)}
+}
+
+func (h *logCapture) Enabled(context.Context, slog.Level) bool { return true }
+func (h *logCapture) Handle(_ context.Context, r slog.Record) error {
+	var b strings.Builder
+	b.WriteString(r.Level.String() + " " + r.Message + h.attrs)
+	r.Attrs(func(a slog.Attr) bool {
+		fmt.Fprintf(&b, " %s=%v", a.Key, a.Value)
+		return true
+	})
+	h.mu.Lock()
+	*h.lines = append(*h.lines, b.String())
+	h.mu.Unlock()
+	return nil
+}
+func (h *logCapture) WithAttrs(as []slog.Attr) slog.Handler {
+	c := *h
+	for _, a := range as {
+		c.attrs += fmt.Sprintf(" %s=%v", a.Key, a.Value)
+	}
+	return &c
+}
+func (h *logCapture) WithGroup(string) slog.Handler { return h }
+
+// count returns how many messages contain s.
+func (h *logCapture) count(s string) int {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	n := 0
+	for _, l := range *h.lines {
+		if strings.Contains(l, s) {
+			n++
+		}
+	}
+	return n
+}
+
+func (h *logCapture) all() string {
+	h.mu.Lock()
+	defer h.mu.Unlock()
+	return strings.Join(*h.lines, "\n")
+}
