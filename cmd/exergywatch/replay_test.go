@@ -318,8 +318,9 @@ func TestReplayMergedPerTagFilesAndMalformedRows(t *testing.T) {
 		"QM.XX.A,2026-06-01T00:00:05Z\n"+ // 7: missing field
 		"\"QM.XX.A,2026-06-01T00:00:06Z,1,good\n"+ // 8: bad quoting
 		",2026-06-01T00:00:07Z,1,good\n"+ // 9: empty tag
-		strings.Repeat("x", maxLine+10)+"\n"+ // 10: too long
-		"\"QM.XX.A\",1780272008000,1,\n"), 0o644); err != nil { // 11: fine (quoted tag, Unix ms, empty quality)
+		"QM.XX.A,0,1,good\n"+ // 10: time before 2000 (Unix ms 0)
+		strings.Repeat("x", maxLine+10)+"\n"+ // 11: too long
+		"\"QM.XX.A\",1780272008000,1,\n"), 0o644); err != nil { // 12: fine (quoted tag, Unix ms, empty quality)
 		t.Fatal(err)
 	}
 	badLP := filepath.Join(dir, "bad.lp")
@@ -342,7 +343,7 @@ func TestReplayMergedPerTagFilesAndMalformedRows(t *testing.T) {
 	t.Log(sumSplit)
 	_, single := run([]string{replayCSV})
 	for _, want := range []string{
-		"rows rejected     10",
+		"rows rejected     11", "time before 2000             1", "bad.csv:10: time before 2000",
 		"bad time                     1", "bad value                    1", "non-finite value             1",
 		"unknown quality              1", "missing field                1", "bad quoting                  1",
 		"empty tag                    1", "line too long                1",
@@ -468,7 +469,7 @@ func FuzzCSVReader(f *testing.F) {
 				break
 			}
 			n++
-			if s.Tag == "" || math.IsNaN(s.Value) || math.IsInf(s.Value, 0) {
+			if s.Tag == "" || math.IsNaN(s.Value) || math.IsInf(s.Value, 0) || s.SourceTime.Before(align.Earliest) {
 				t.Fatalf("bad sample %+v", s)
 			}
 			if s.Quality != ingest.Good && s.Quality != ingest.Uncertain && s.Quality != ingest.Bad {
