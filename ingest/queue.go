@@ -1,12 +1,6 @@
 package ingest
 
-import (
-	"context"
-	"errors"
-)
-
-// ErrQueueClosed is returned by Put after Close.
-var ErrQueueClosed = errors.New("ingest queue closed")
+import "context"
 
 // Queue is the bounded, counted queue of sample batches between the sources
 // and the evaluation. Sources with at-most-once delivery (core NATS, OPC UA)
@@ -16,7 +10,6 @@ var ErrQueueClosed = errors.New("ingest queue closed")
 type Queue struct {
 	ch      chan []Sample
 	metrics *Metrics
-	done    chan struct{}
 }
 
 // NewQueue returns a queue holding at most capacity batches (minimum 1).
@@ -24,7 +17,7 @@ func NewQueue(capacity int, m *Metrics) *Queue {
 	if capacity < 1 {
 		capacity = 1
 	}
-	return &Queue{ch: make(chan []Sample, capacity), metrics: m, done: make(chan struct{})}
+	return &Queue{ch: make(chan []Sample, capacity), metrics: m}
 }
 
 // Offer enqueues the batch without blocking. When the queue is full it drops

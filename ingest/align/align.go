@@ -95,9 +95,8 @@ type Snapshot struct {
 	Reasons ingest.Reasons // machine-level reasons (skew)
 	Skew    time.Duration  // spread of the newest sample times of the inputs
 
-	acks    []*ingest.Ack
-	once    sync.Once
-	metrics *ingest.Metrics
+	acks []*ingest.Ack
+	once sync.Once
 }
 
 // Release acknowledges the samples this snapshot holds. Safe to call more
@@ -266,6 +265,9 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 			e.metrics.Count(ingest.ReasonOutOfOrder, 1)
 		}
 		use, rs := tr.chk.Check(st, si, s.Quality, inOrder)
+		if s.HasStatus && s.StatusCode == StatusBadNoCommunication {
+			rs = rs.Add(ingest.ReasonGap)
+		}
 		if !inOrder {
 			rs = rs.Add(ingest.ReasonOutOfOrder)
 		}
@@ -322,7 +324,7 @@ func (e *Engine) Evaluate(now time.Time) []*Snapshot {
 	}
 	out := make([]*Snapshot, 0, len(e.machines))
 	for _, mc := range e.machines {
-		snap := &Snapshot{Machine: mc.name, At: now, From: start, Values: map[tagmap.Key]Value{}, metrics: e.metrics}
+		snap := &Snapshot{Machine: mc.name, At: now, From: start, Values: map[tagmap.Key]Value{}}
 		for _, idx := range mc.tracks {
 			v := e.value(idx, start, now)
 			snap.Values[e.tracks[idx].sig.Key] = v
@@ -338,6 +340,7 @@ func (e *Engine) Evaluate(now time.Time) []*Snapshot {
 		e.skew(snap)
 		for _, v := range snap.Values {
 			snap.Quality = ingest.Worse(snap.Quality, v.Quality)
+			e.countReasons(v.Reasons & evalReasons)
 		}
 		snap.acks, mc.pending = mc.pending, nil
 		out = append(out, snap)
@@ -361,6 +364,16 @@ func prune(tr *track, from int64) {
 	n := copy(tr.pts, tr.pts[k-1:])
 	tr.pts = tr.pts[:n]
 }
+
+// evalReasons are found at evaluation; counted once per value and tick.
+var evalReasons = ingest.Reasons(0).Add(ingest.ReasonStale).Add(ingest.ReasonLowCoverage).Add(ingest.ReasonNoData).
+	Add(ingest.ReasonSubstituted).Add(ingest.ReasonDivergence)
+
+// StatusBadNoCommunication is the OPC UA StatusCode (Part 4, 7.39 /
+// Part 6 StatusCode table: 0x80310000) that the OPC UA source puts on its
+// gap-marker samples when a session is lost; the engine flags such points
+// with ReasonGap.
+const StatusBadNoCommunication = 0x80310000
 
 // doubtful reasons make a value uncertain.
 var doubtful = ingest.Reasons(0).Add(ingest.ReasonStatusUncertain).Add(ingest.ReasonStuck).Add(ingest.ReasonLowCoverage).

@@ -221,3 +221,22 @@ func FuzzEngineIngest(f *testing.F) {
 		}
 	})
 }
+
+func TestGapMarker(t *testing.T) {
+	// The OPC UA source marks a lost session with a BadNoCommunication
+	// sample: the hold stops there and the value says "gap". 5 bar held
+	// 0..30 s, gap 30..50 s, 6 bar 50..60 s: (5*30 + 6*10)/40 = 5.25 bar
+	// over coverage 40/60 (hand computed).
+	e, met := newEngine(t, Config{Window: time.Minute}, tagmap.Config{Tags: []tagmap.TagConfig{
+		{Tag: "pt", Machine: "m", Port: "inlet", Quantity: "p", Unit: "bar"}}})
+	marker := smp("pt", 30, 0)
+	marker.Quality, marker.HasStatus, marker.StatusCode = ingest.Bad, true, StatusBadNoCommunication
+	e.Ingest([]ingest.Sample{smp("pt", 0, 5), marker, smp("pt", 50, 6)}, at(55))
+	v := e.Evaluate(at(60))[0].Values[tagmap.Key{Port: "inlet", Quantity: "p"}]
+	if math.Abs(v.SI-5.25e5) > 1e-6 || math.Abs(v.Coverage-40.0/60) > 1e-12 || !v.Reasons.Has(ingest.ReasonGap) || v.Quality != ingest.Uncertain {
+		t.Fatalf("got %+v (%v)", v, v.Reasons)
+	}
+	if met.Reason(ingest.ReasonGap) != 1 {
+		t.Fatalf("gap counted %d", met.Reason(ingest.ReasonGap))
+	}
+}

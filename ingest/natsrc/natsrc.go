@@ -247,6 +247,7 @@ func (s *Source) Options() ([]nats.Option, error) {
 			if s.metrics != nil {
 				s.metrics.Reconnects.Add(1)
 				s.metrics.GapNanos.Add(uint64(max(gap, 0)))
+				s.metrics.Count(ingest.ReasonGap, 1)
 			}
 			s.log.Warn("nats reconnected", "url", nc.ConnectedUrlRedacted(), "gap", gap)
 		}),
