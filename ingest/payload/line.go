@@ -217,8 +217,8 @@ func parseLine(line []byte, fields []lpField) (base []byte, _ []lpField, ts int6
 		for len(rest) > 0 && (rest[len(rest)-1] == ' ' || rest[len(rest)-1] == '\t') {
 			rest = rest[:len(rest)-1]
 		}
-		t, perr := strconv.ParseInt(string(rest), 10, 64)
-		if perr != nil {
+		t, ok := parseInt64(rest)
+		if !ok {
 			return base, fields, 0, false, fmt.Errorf("%w: %q", ErrBadTime, truncate(line[i:]))
 		}
 		ts, hasTS = t, true
@@ -267,6 +267,43 @@ func scanKey(line []byte, i int, stop *[256]bool) ([]byte, int) {
 		return out, i
 	}
 	return line[start:i], i
+}
+
+// parseInt64 reads an optionally signed decimal integer; false on any
+// other byte, on an empty number or on overflow.
+func parseInt64(b []byte) (int64, bool) {
+	neg := false
+	if len(b) > 0 && (b[0] == '-' || b[0] == '+') {
+		neg = b[0] == '-'
+		b = b[1:]
+	}
+	if len(b) == 0 {
+		return 0, false
+	}
+	for len(b) > 1 && b[0] == '0' {
+		b = b[1:]
+	}
+	if len(b) > 19 {
+		return 0, false
+	}
+	var u uint64
+	for _, c := range b {
+		if c < '0' || c > '9' {
+			return 0, false
+		}
+		u = u*10 + uint64(c-'0')
+	}
+	// 19 digits fit in uint64; the int64 range is checked here.
+	if neg {
+		if u > 1<<63 {
+			return 0, false
+		}
+		return -int64(u), true
+	}
+	if u > 1<<63-1 {
+		return 0, false
+	}
+	return int64(u), true
 }
 
 func parseLPValue(b []byte) (float64, error) {

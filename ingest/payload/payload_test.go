@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"errors"
 	"math"
+	"strconv"
 	"testing"
 	"time"
 
@@ -232,6 +233,19 @@ func FuzzJSONRoundTrip(f *testing.F) {
 		}
 		if withTS && !s.SourceTime.Equal(time.UnixMilli(ms)) {
 			t.Fatalf("%s: time %v want %v", data, s.SourceTime, time.UnixMilli(ms))
+		}
+	})
+}
+
+func FuzzParseInt64(f *testing.F) {
+	for _, s := range []string{"0", "-1", "+5", "9223372036854775807", "-9223372036854775808", "9223372036854775808", "1e3", "", "-", "0123"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		got, ok := parseInt64([]byte(s))
+		want, err := strconv.ParseInt(s, 10, 64)
+		if ok != (err == nil) || (ok && got != want) {
+			t.Fatalf("%q: got %d %v, strconv %d %v", s, got, ok, want, err)
 		}
 	})
 }
