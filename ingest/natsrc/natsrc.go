@@ -427,8 +427,12 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 		if err == nil {
 			break
 		}
-		if errors.Is(err, jetstream.ErrStreamNotFound) && nc.IsConnected() {
-			return fmt.Errorf("jetstream stream %q: %w", s.cfg.Stream, err)
+		// The server answered and refused (missing stream, a durable with
+		// settings that cannot be changed, ...): retrying cannot help.
+		var apiErr *jetstream.APIError
+		if errors.As(err, &apiErr) && ((apiErr.Code >= 400 && apiErr.Code < 500) ||
+			apiErr.ErrorCode == jetstream.JSErrCodeConsumerCreate || apiErr.ErrorCode == jetstream.JSErrCodeBadRequest) {
+			return fmt.Errorf("jetstream consumer %q on stream %q: %w", s.cfg.Durable, s.cfg.Stream, err)
 		}
 		s.log.Warn("jetstream consumer not ready, retrying", "err", err)
 		select {

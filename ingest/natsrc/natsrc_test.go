@@ -422,3 +422,40 @@ func TestAuthentication(t *testing.T) {
 		})
 	}
 }
+
+// TestJetStreamRefusals: a missing stream, or a durable whose ack policy
+// cannot be changed, end Run with an error instead of retrying forever.
+func TestJetStreamRefusals(t *testing.T) {
+	ns := startNATS(t, baseOpts(t, true))
+	pub, err := nats.Connect(ns.url())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer pub.Close()
+	js, _ := jetstream.New(pub)
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
+	defer cancel()
+	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "S", Subjects: []string{"s.>"}}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := js.CreateOrUpdateConsumer(ctx, "S", jetstream.ConsumerConfig{Durable: "d", AckPolicy: jetstream.AckExplicitPolicy}); err != nil {
+		t.Fatal(err)
+	}
+	for name, cfg := range map[string]Config{
+		"missing stream":      {Stream: "NOPE", Durable: "d"},
+		"ack policy mismatch": {Stream: "S", Durable: "d", AckPolicy: "all"},
+	} {
+		cfg.URLs, cfg.Subjects, cfg.Mode = []string{ns.url()}, []string{"s.>"}, ModeJetStream
+		src, err := New(cfg, ingest.NewQueue(1, nil), nil, quietLog(), nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		rctx, rcancel := context.WithTimeout(ctx, 10*time.Second)
+		err = src.Run(rctx)
+		rcancel()
+		var apiErr *jetstream.APIError
+		if !errors.As(err, &apiErr) {
+			t.Errorf("%s: Run returned %v, want the server's refusal", name, err)
+		}
+	}
+}
