@@ -548,9 +548,10 @@ func (e *Engine) skew(snap *Snapshot) {
 }
 
 // Run feeds the engine from q and sends the snapshots built at every value
-// of ticks to out (the caller Releases them after evaluation). now gives
-// the ingest time. Run returns when ctx ends; pending acknowledgements are
-// then not sent, so JetStream redelivers those samples after a restart.
+// of ticks to out (the caller Releases them after evaluation). clock gives
+// the ingest time (nil: the wall clock). Run returns when ctx ends; pending
+// acknowledgements are then not sent, so JetStream redelivers those samples
+// after a restart.
 func (e *Engine) Run(ctx context.Context, q *ingest.Queue, ticks <-chan time.Time, clock ingest.Clock, out chan<- []*Snapshot) error {
 	if clock == nil {
 		clock = ingest.SystemClock{}
