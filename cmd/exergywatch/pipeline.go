@@ -255,19 +255,35 @@ func (p *pipeline) run(ctx context.Context) error {
 		defer wg.Done()
 		defer close(ticks)
 		iv := p.cfg.Evaluation.Interval.D()
-		t := time.NewTicker(iv)
-		defer t.Stop()
+		// Each tick is the previous one plus the interval, sent once the
+		// clock has passed it: tick times are strictly increasing and on
+		// boundaries even when a timer fires early or late.
+		next := p.opt.clock.Now().Truncate(iv).Add(iv)
+		timer := time.NewTimer(time.Until(next))
+		defer timer.Stop()
 		for {
 			select {
 			case <-ctx.Done():
 				return
-			case <-t.C:
-				select {
-				case ticks <- p.opt.clock.Now().Truncate(iv):
-				case <-ctx.Done():
-					return
-				}
+			case <-timer.C:
 			}
+			now := p.opt.clock.Now()
+			if now.Before(next) {
+				timer.Reset(next.Sub(now))
+				continue
+			}
+			tick := next
+			// After a stall (suspend, overload), skip missed ticks rather
+			// than evaluate a burst of empty windows.
+			for !next.After(now) {
+				next = next.Add(iv)
+			}
+			select {
+			case ticks <- tick:
+			case <-ctx.Done():
+				return
+			}
+			timer.Reset(time.Until(next))
 		}
 	}()
 	wg.Add(1)
