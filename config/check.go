@@ -34,12 +34,21 @@ func FigureNames() []string {
 	for id := machine.FigureID(0); id < machine.NumFigures; id++ {
 		out = append(out, id.RecordName())
 	}
-	return append(out, LostWorkCostFigure)
+	return append(out, LostWorkCostFigure, DegradationPowerFigure, DegradationCostFigure)
 }
 
-// LostWorkCostFigure is the series of the cost of lost work, in the site's
-// currency per hour (present when site.energy_price_per_mwh is set).
-const LostWorkCostFigure = "lost_work_cost_per_h"
+// Series the daemon adds to the machine model's figures.
+const (
+	// LostWorkCostFigure is the cost of lost work, in the site's currency
+	// per hour (present when site.energy_price_per_mwh is set).
+	LostWorkCostFigure = "lost_work_cost_per_h"
+	// DegradationPowerFigure is the power, W, the machine costs beyond its
+	// baseline isentropic efficiency at the same duty (present when the
+	// machine has a baseline for isentropic_efficiency; see compute/baseline).
+	DegradationPowerFigure = "degradation_power_w"
+	// DegradationCostFigure prices DegradationPowerFigure, currency per hour.
+	DegradationCostFigure = "degradation_cost_per_h"
+)
 
 func reasonNames() []string {
 	var out []string

@@ -231,7 +231,7 @@ func cmdDemo(args []string, stdout, stderr io.Writer) int {
 func printSummary(w io.Writer, v statusView, elapsed time.Duration, load float64, currency string, events []compute.Event) {
 	var b strings.Builder
 	fmt.Fprintf(&b, "--- t+%-5s load %3.0f %% ------------------------------------------------------------------------------------\n", elapsed.Round(time.Second), 100*load)
-	fmt.Fprintf(&b, "%-15s %-11s %-9s %8s %7s %9s %10s %11s %11s  %s\n", "machine", "mode", "state", "eta_s %", "±U95", "vs base", "Sgen kW/K", "lost kW", currency+"/h", "quality / reasons")
+	fmt.Fprintf(&b, "%-15s %-11s %-9s %8s %7s %9s %10s %9s %9s %10s  %s\n", "machine", "mode", "state", "eta_s %", "±U95", "vs base", "Sgen kW/K", "lost kW", "drift kW", "drift "+currency+"/h", "quality / reasons")
 	for _, m := range v.Machines {
 		state := "transient"
 		if m.Steady {
@@ -250,17 +250,20 @@ func printSummary(w io.Writer, v statusView, elapsed time.Duration, load float64
 		if d, ok := m.Deviation["isentropic_efficiency"]; ok {
 			dev = fmt.Sprintf("%+.2f pt", 100*d)
 		}
-		sgen, lost, cost := "-", "-", "-"
+		sgen, lost, drift, cost := "-", "-", "-", "-"
 		if f, ok := m.Figures["entropy_generation_rate_w_per_k"]; ok && f.Value != nil {
 			sgen = fmt.Sprintf("%.2f", *f.Value/1e3)
 		}
 		if f, ok := m.Figures["lost_work_rate_w"]; ok && f.Value != nil {
 			lost = fmt.Sprintf("%.0f", *f.Value/1e3)
 		}
-		if f, ok := m.Figures[config.LostWorkCostFigure]; ok && f.Value != nil {
+		if f, ok := m.Figures[config.DegradationPowerFigure]; ok && f.Value != nil {
+			drift = fmt.Sprintf("%.0f", *f.Value/1e3)
+		}
+		if f, ok := m.Figures[config.DegradationCostFigure]; ok && f.Value != nil {
 			cost = fmt.Sprintf("%.1f", *f.Value)
 		}
-		fmt.Fprintf(&b, "%-15s %-11s %-9s %8s %7s %9s %10s %11s %11s  %s%s\n", m.ID, m.Mode, state, eta, u, dev, sgen, lost, cost, m.Quality, shortReasons(m.Reasons))
+		fmt.Fprintf(&b, "%-15s %-11s %-9s %8s %7s %9s %10s %9s %9s %10s  %s%s\n", m.ID, m.Mode, state, eta, u, dev, sgen, lost, drift, cost, m.Quality, shortReasons(m.Reasons))
 	}
 	for _, a := range v.Alerts {
 		what := a.Figure

@@ -10,6 +10,7 @@ import (
 
 	"github.com/exergywatch/exergywatch/compute"
 	"github.com/exergywatch/exergywatch/compute/alert"
+	"github.com/exergywatch/exergywatch/compute/baseline"
 	"github.com/exergywatch/exergywatch/compute/machine"
 	"github.com/exergywatch/exergywatch/compute/mode"
 	"github.com/exergywatch/exergywatch/compute/steady"
@@ -196,6 +197,7 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 			rec = machine.BadRecord(now, e.site, e.id, e.kind, err)
 		} else {
 			rec = res.Record(now, e.site, e.id)
+			e.addDegradation(&rec)
 			e.addCost(&rec)
 		}
 		if !steadyNow && rec.Quality != compute.QualityBad {
@@ -232,6 +234,46 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 		e.lastGood, e.hasGood = rec, true
 	}
 	return rec, events
+}
+
+// addDegradation adds the power the machine costs beyond its baseline
+// isentropic efficiency (compute/baseline), and its price.
+func (e *evaluator) addDegradation(rec *compute.Record) {
+	base, ok := e.baseline[machine.IsentropicEfficiency.RecordName()]
+	if !ok {
+		return
+	}
+	var eta, pw *compute.Figure
+	for i := range rec.Figures {
+		switch rec.Figures[i].Name {
+		case machine.IsentropicEfficiency.RecordName():
+			eta = &rec.Figures[i]
+		case machine.Power.RecordName():
+			pw = &rec.Figures[i]
+		}
+	}
+	if eta == nil || pw == nil {
+		return
+	}
+	q := compute.Worse(eta.Quality, pw.Quality)
+	reasons := append(append([]string(nil), eta.Reasons...), pw.Reasons...)
+	f := compute.Figure{Name: config.DegradationPowerFigure, Quality: q, Reasons: reasons, Value: math.NaN()}
+	if q != compute.QualityBad {
+		dp, u, err := baseline.DegradationPower(baseline.Expansion(e.kind == machine.Turbine), eta.Value, eta.U95, math.Abs(pw.Value), pw.U95, base)
+		if err != nil {
+			f.Quality, f.Reasons = compute.QualityBad, append(f.Reasons, "degradation_not_computable")
+		} else {
+			f.Value, f.U95, f.HasU95 = dp, u, eta.HasU95
+		}
+	}
+	rec.Figures = append(rec.Figures, f)
+	if e.price > 0 {
+		c := compute.Figure{Name: config.DegradationCostFigure, Quality: f.Quality, Reasons: f.Reasons, Value: math.NaN()}
+		if f.Quality != compute.QualityBad {
+			c.Value, c.U95, c.HasU95 = f.Value/1e6*e.price, f.U95/1e6*e.price, f.HasU95
+		}
+		rec.Figures = append(rec.Figures, c)
+	}
 }
 
 func (e *evaluator) addCost(rec *compute.Record) {

@@ -158,3 +158,41 @@ func TestEvaluatorDailyAggregate(t *testing.T) {
 		t.Errorf("daily mean %v, want about the simulated 0.84", m)
 	}
 }
+
+// A fouled air compressor costs extra power: ΔP = P (1 − η/η_b)
+// (compute/baseline), positive, and priced at the site's energy price.
+func TestEvaluatorDegradationCost(t *testing.T) {
+	cfg := demoCfg(t)
+	start := time.Date(2026, 4, 1, 6, 0, 0, 0, time.UTC)
+	o := plantsim.DemoOptions(start)
+	o.LoadChangeAfter, o.StuckSensorAfter, o.SpikeProbability = 0, 0, 0
+	plant, err := plantsim.New(o, fluids.New)
+	if err != nil {
+		t.Fatal(err)
+	}
+	keys := cfg.Keys()
+	e, err := newEvaluator(cfg, machineCfg(t, cfg, "air-compressor"), keys["air-compressor"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	var rec compute.Record
+	for at := 2 * time.Second; at <= 3*time.Minute; at += 2 * time.Second {
+		rec, _ = e.evaluate(snapshotFrom(t, cfg, plant, "air-compressor", start.Add(at)))
+	}
+	got := map[string]compute.Figure{}
+	for _, f := range rec.Figures {
+		got[f.Name] = f
+	}
+	eta, p, dp, cost := got["isentropic_efficiency"], got["power_w"], got[config.DegradationPowerFigure], got[config.DegradationCostFigure]
+	if dp.Quality == compute.QualityBad || dp.Value <= 0 {
+		t.Fatalf("degradation power %+v, want positive", dp)
+	}
+	want := p.Value * (1 - eta.Value/0.84)
+	if math.Abs(dp.Value-want) > 1e-9*want {
+		t.Errorf("ΔP = %v, want P(1-η/η_b) = %v", dp.Value, want)
+	}
+	// Price 60 per MWh from demo.yaml: cost per hour = ΔP/1e6 * 60.
+	if math.Abs(cost.Value-dp.Value/1e6*60) > 1e-9 {
+		t.Errorf("cost %v, want %v", cost.Value, dp.Value/1e6*60)
+	}
+}
