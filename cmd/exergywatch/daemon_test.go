@@ -28,6 +28,7 @@ import (
 	"github.com/nats-io/nats.go"
 	"go.uber.org/goleak"
 
+	"github.com/exergywatch/exergywatch/cmd/exergywatch/internal/plantsim"
 	"github.com/exergywatch/exergywatch/compute"
 	"github.com/exergywatch/exergywatch/config"
 	"github.com/exergywatch/exergywatch/sinks"
@@ -1005,4 +1006,198 @@ func TestTickTimesStrictlyIncrease(t *testing.T) {
 		}
 		last[r.Machine] = r.Time
 	}
+}
+
+// malformed are payloads the plant bus might carry by mistake. Each must
+// be counted as a decode error (or a dropped sample) and nothing else.
+var malformed = [][]byte{
+	nil,
+	[]byte("{"),
+	[]byte("["),
+	[]byte("null"),
+	[]byte(`{"samples": 5}`),
+	[]byte(`{"tag": 5, "value": 1}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": "abc"}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": NaN}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 1, "ts": "yesterday"}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 1, "quality": "splendid"}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 1, "status": -3}`),
+	[]byte(`[{"tag": "QM.RC1.PT601", "value": {}}, {"tag": "QM.RC1.PT601"}]`),
+	[]byte(strings.Repeat("[", 100000)),
+	[]byte("\xff\xfe\x00garbage"),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 1e400}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 1e308}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 300, "ts": "2199-01-01T00:00:00Z"}`),
+	[]byte(`{"tag": "QM.RC1.PT601", "value": 300, "ts": "1990-01-01T00:00:00Z"}`),
+	[]byte(`{"tag": "QM.NOT.MAPPED", "value": 1}`),
+	[]byte("QM.RC1.PT601 value=+Inf"),
+	[]byte("QM.RC1.PT601 value="),
+	[]byte("QM.RC1.PT601,tag= value=1 notatime"),
+}
+
+// TestBadInputThroughDaemon (g): faulty data on the bus, through the whole
+// daemon, into three sinks (store, NATS, InfluxDB API on VictoriaMetrics):
+//
+//	hp-turbine     outlet temperature arrives only as NaN / +Inf (line protocol) and 1e400 (JSON)
+//	feed-pump      outlet temperature with quality "bad"
+//	lp-turbine     outlet pressure stops after 2 s (stale_after 600ms)
+//	gas-compressor outlet pressure never published (missing tag)
+//	air-compressor discharge gauge pressure (barg) with a barometer tag that never reports
+//	nh3-compressor good data, plus every payload of malformed on its subject
+//
+// No panic, no sink rejects anything as non-finite, no NaN or Inf in any
+// sink, every record that is not good says why, and each fault is named
+// in the records of its machine.
+func TestBadInputThroughDaemon(t *testing.T) {
+	t.Parallel()
+	vm := vmtest.StartServer(t)
+	ns := startNATS(t, false)
+	defer stopNATS(ns)
+	dir := t.TempDir()
+	tr := fastTree(t, ns.ClientURL(), dir)
+	tr.addSink(influxSink(vm.URL, filepath.Join(dir, "spool")))
+	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"url": ns.ClientURL()}})
+	tm := tr["tag_map"].(map[string]any)
+	delete(tm, "site_pressure")
+	tm["tags"] = append(tm["tags"].([]any), map[string]any{"tag": "QM.SITE.PB01", "quantity": "p", "unit": "kPa"})
+	tr.tag(t, "QM.AC1.PT402")["barometer_tag"] = "QM.SITE.PB01"
+	tr.tag(t, "QM.LP1.PT202")["checks"] = map[string]any{"stale_after": "600ms"}
+	cfgPath := tr.write(t, dir, "exergywatch.yaml")
+
+	w := newNATSWitness(t, ns.ClientURL())
+	defer w.close()
+	var f *feeder
+	inf := 0
+	mutate := func(e time.Duration, rs []plantsim.Reading) []plantsim.Reading {
+		out := rs[:0]
+		for _, r := range rs {
+			switch {
+			case r.Tag == "QM.HP1.TT102":
+				inf++
+				switch inf % 3 {
+				case 0:
+					f.publishRaw("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=NaN"))
+				case 1:
+					f.publishRaw("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=+Inf"))
+				default:
+					f.publishRaw("quillmoor.tags.hp-turbine", []byte(`{"tag": "QM.HP1.TT102", "value": 1e400}`))
+				}
+				continue
+			case r.Tag == "QM.FP1.TT302":
+				r.Quality = "bad"
+			case r.Tag == "QM.LP1.PT202" && e > 2*time.Second:
+				continue
+			case r.Tag == "QM.GC1.PT502":
+				continue
+			case r.Tag == "QM.RC1.PT601":
+				for _, p := range malformed {
+					f.publishRaw("quillmoor.tags.nh3-compressor", p)
+				}
+			}
+			out = append(out, r)
+		}
+		return out
+	}
+	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
+	f = startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, mutate)
+	defer f.stop()
+	waitFor(t, 30*time.Second, "20 usable nh3-compressor records and 4 s of lp-turbine", func() bool {
+		return d.countWhere("nh3-compressor", usable) >= 20 && time.Since(f.start) > 4*time.Second
+	}, d.summary)
+	m := d.metrics()
+	if err := d.stop(); err != nil {
+		t.Fatalf("daemon stopped with %v", err)
+	}
+	f.stop()
+
+	for _, s := range d.st.cur.Load().multi.Stats() {
+		if s.Rejected != 0 || s.Dropped != 0 {
+			t.Errorf("sink %s rejected %d and dropped %d items (last error %q): a record broke the contract", s.Name, s.Rejected, s.Dropped, s.LastError)
+		}
+	}
+	for _, want := range []string{"exergywatch_ingest_decode_errors_total",
+		`exergywatch_ingest_flagged_samples_total{reason="non_finite"}`,
+		`exergywatch_ingest_flagged_samples_total{reason="status_bad"}`,
+		`exergywatch_ingest_flagged_samples_total{reason="no_barometer"}`,
+		`exergywatch_ingest_flagged_samples_total{reason="time_future"}`,
+		`exergywatch_ingest_flagged_samples_total{reason="unmapped"}`} {
+		if m[want] <= 0 {
+			t.Errorf("%s = %v, want > 0", want, m[want])
+		}
+	}
+
+	recs, _ := d.snapshot()
+	faults := map[string]string{"hp-turbine": "T@outlet", "feed-pump": "T@outlet:status_bad", "lp-turbine": "p@outlet",
+		"gas-compressor": "p@outlet", "air-compressor": "p@outlet"}
+	named := map[string]int{}
+	total := map[string]int{}
+	for _, r := range recs {
+		if err := r.Validate(); err != nil {
+			t.Errorf("record breaks the contract: %v", err)
+		}
+		if r.Quality != compute.QualityGood && len(r.Reasons) == 0 {
+			t.Errorf("%s: quality %s without a reason", describeRecord(r), r.Quality)
+		}
+		for _, fg := range r.Figures {
+			if fg.Quality == compute.QualityBad && len(fg.Reasons) == 0 && len(r.Reasons) == 0 {
+				t.Errorf("%s: Bad figure %s without a reason", describeRecord(r), fg.Name)
+			}
+			if fg.Quality != compute.QualityBad && (math.IsNaN(fg.Value) || math.IsInf(fg.Value, 0)) {
+				t.Errorf("%s: figure %s = %v with quality %s", describeRecord(r), fg.Name, fg.Value, fg.Quality)
+			}
+		}
+		want, ok := faults[r.Machine]
+		if !ok || r.Time.Before(f.start.Add(time.Second)) || (r.Machine == "lp-turbine" && r.Time.Before(f.start.Add(3*time.Second))) {
+			continue
+		}
+		total[r.Machine]++
+		if r.Quality == compute.QualityGood {
+			t.Errorf("%s: good despite the fault on %s", describeRecord(r), want)
+		}
+		if strings.Contains(strings.Join(r.Reasons, " "), want) {
+			if named[r.Machine] == 0 {
+				t.Logf("example: %s", describeRecord(r))
+			}
+			named[r.Machine]++
+		} else if named[r.Machine] == 0 && total[r.Machine] < 3 {
+			t.Logf("%s does not name %s", describeRecord(r), want)
+		}
+	}
+	for mach, want := range faults {
+		if total[mach] == 0 || named[mach] != total[mach] {
+			t.Errorf("%s: %d of %d records name the fault %q", mach, named[mach], total[mach], want)
+		}
+	}
+	for _, r := range recs {
+		if r.Machine == "nh3-compressor" && r.Time.After(f.start.Add(3*time.Second)) && r.Quality == compute.QualityBad {
+			t.Errorf("malformed payloads spoilt the good data: %s", describeRecord(r))
+		}
+	}
+	// What the sinks hold: no NaN, nothing undecodable, every record there.
+	stored, _ := readStore(t, filepath.Join(dir, "history.db"))
+	n := 0
+	for _, rs := range stored {
+		for _, r := range rs {
+			n++
+			if err := r.Validate(); err != nil {
+				t.Errorf("store: %v", err)
+			}
+		}
+	}
+	if n != len(recs) {
+		t.Errorf("store holds %d records, the pipeline produced %d", n, len(recs))
+	}
+	time.Sleep(200 * time.Millisecond)
+	if len(w.bad) > 0 || w.count() != len(recs) {
+		t.Errorf("NATS sink: %d records decoded, %d undecodable (%v), want %d", w.count(), len(w.bad), w.bad, len(recs))
+	}
+	for _, s := range exportSettled(t, vm, `{__name__=~"exw_.*"}`, len(recs)) {
+		for _, v := range s.Values {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				t.Errorf("VictoriaMetrics: %s holds %v", s.Key(), v)
+				break
+			}
+		}
+	}
+	t.Logf("%d records; faults named: %v of %v; decode errors %v", len(recs), named, total, m["exergywatch_ingest_decode_errors_total"])
 }
