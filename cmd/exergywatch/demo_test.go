@@ -153,7 +153,10 @@ func TestDemoScenarioCompressed(t *testing.T) {
 	ctx, cancel := context.WithCancel(context.Background())
 	var wg sync.WaitGroup
 	wg.Add(1)
-	go func() { defer wg.Done(); _ = publishPlant(ctx, nc, plant, "quillmoor.tags", 100*time.Millisecond, testLog(t)) }()
+	go func() {
+		defer wg.Done()
+		_ = publishPlant(ctx, nc, plant, "quillmoor.tags", 100*time.Millisecond, testLog(t))
+	}()
 	defer func() { cancel(); wg.Wait() }()
 
 	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
