@@ -114,3 +114,57 @@ func (h *seqHeap) Pop() any {
 	*h = old[:len(old)-1]
 	return m
 }
+
+// streamSeq reads the stream sequence from a JetStream ack subject without
+// building the full metadata (nats.go v1.55.0 internal/parser/parse.go
+// documents both layouts):
+//
+//	v1 (9 tokens):   $JS.ACK.<stream>.<consumer>.<delivered>.<sseq>.<cseq>.<tm>.<pending>
+//	v2 (11+ tokens): $JS.ACK.<domain>.<acchash>.<stream>.<consumer>.<delivered>.<sseq>.<cseq>.<tm>.<pending>[.<token>]
+func streamSeq(reply string) (uint64, bool) {
+	const prefix = "$JS.ACK."
+	if len(reply) < len(prefix) || reply[:len(prefix)] != prefix {
+		return 0, false
+	}
+	n := 1
+	for i := 0; i < len(reply); i++ {
+		if reply[i] == '.' {
+			n++
+		}
+	}
+	var pos int // token index of the stream sequence
+	switch {
+	case n == 9:
+		pos = 5
+	case n >= 11:
+		pos = 7
+	default:
+		return 0, false
+	}
+	tok, start := 0, 0
+	for i := 0; i <= len(reply); i++ {
+		if i == len(reply) || reply[i] == '.' {
+			if tok == pos {
+				return parseUint(reply[start:i])
+			}
+			tok++
+			start = i + 1
+		}
+	}
+	return 0, false
+}
+
+func parseUint(s string) (uint64, bool) {
+	if s == "" || len(s) > 19 {
+		return 0, false
+	}
+	var u uint64
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if c < '0' || c > '9' {
+			return 0, false
+		}
+		u = u*10 + uint64(c-'0')
+	}
+	return u, true
+}

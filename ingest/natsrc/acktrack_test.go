@@ -41,3 +41,24 @@ func TestAckTrackerNeverPassesInFlight(t *testing.T) {
 	d4()
 	flush(5, 3)
 }
+
+func TestStreamSeq(t *testing.T) {
+	// Layouts from nats.go v1.55.0 internal/parser/parse.go.
+	for _, tc := range []struct {
+		in   string
+		want uint64
+		ok   bool
+	}{
+		{"$JS.ACK.PLANT.ew.1.4711.12.1764583200000000000.0", 4711, true},
+		{"$JS.ACK._.ABCHASH.PLANT.ew.2.99.13.1764583200000000000.5.XyZ", 99, true},
+		{"$JS.ACK.dom.ABCHASH.PLANT.ew.2.100.13.1764583200000000000.5", 100, true},
+		{"$JS.ACK.PLANT.ew.1.x.12.1.0", 0, false},
+		{"$JS.ACK.a.b.c", 0, false},
+		{"_INBOX.abc", 0, false},
+	} {
+		got, ok := streamSeq(tc.in)
+		if got != tc.want || ok != tc.ok {
+			t.Errorf("%s: got %d %v", tc.in, got, ok)
+		}
+	}
+}

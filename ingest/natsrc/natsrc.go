@@ -481,12 +481,16 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 	cc, err := cons.Consume(func(m jetstream.Msg) {
 		var done func()
 		if s.cfg.AckPolicy == "all" {
-			md, err := m.Metadata()
-			if err != nil {
-				s.limiter.Warn(s.clock.Now(), "metadata", "jetstream message without metadata", "err", err)
-				return // never acknowledged: redelivered
+			seq, ok := streamSeq(m.Reply())
+			if !ok {
+				md, err := m.Metadata() // slow path, also reports the reason
+				if err != nil {
+					s.limiter.Warn(s.clock.Now(), "metadata", "jetstream message without metadata", "err", err)
+					return // never acknowledged: redelivered
+				}
+				seq = md.Sequence.Stream
 			}
-			done = tracker.add(md.Sequence.Stream, m.Ack)
+			done = tracker.add(seq, m.Ack)
 		} else {
 			done = func() {
 				if err := m.Ack(); err != nil {

@@ -459,3 +459,48 @@ func TestJetStreamRefusals(t *testing.T) {
 		}
 	}
 }
+
+// TestStreamSeqMatchesMetadata compares the fast parser with nats.go's
+// own metadata on real messages from the embedded server.
+func TestStreamSeqMatchesMetadata(t *testing.T) {
+	ns := startNATS(t, baseOpts(t, true))
+	nc, err := nats.Connect(ns.url())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer nc.Close()
+	js, _ := jetstream.New(nc)
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
+	defer cancel()
+	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "M", Subjects: []string{"m.>"}}); err != nil {
+		t.Fatal(err)
+	}
+	for i := 0; i < 5; i++ {
+		if _, err := js.Publish(ctx, "m.x", []byte("x")); err != nil {
+			t.Fatal(err)
+		}
+	}
+	cons, err := js.CreateOrUpdateConsumer(ctx, "M", jetstream.ConsumerConfig{Durable: "c", AckPolicy: jetstream.AckExplicitPolicy})
+	if err != nil {
+		t.Fatal(err)
+	}
+	batch, err := cons.Fetch(5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for m := range batch.Messages() {
+		md, err := m.Metadata()
+		if err != nil {
+			t.Fatal(err)
+		}
+		seq, ok := streamSeq(m.Reply())
+		if !ok || seq != md.Sequence.Stream {
+			t.Fatalf("reply %q: fast %d %v, metadata %d", m.Reply(), seq, ok, md.Sequence.Stream)
+		}
+		n++
+	}
+	if n != 5 {
+		t.Fatalf("got %d messages", n)
+	}
+}
