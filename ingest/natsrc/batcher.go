@@ -3,6 +3,7 @@ package natsrc
 import (
 	"context"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/exergywatch/exergywatch/ingest"
@@ -16,6 +17,10 @@ import (
 // batch; hand-over (put) also happens under the lock, so batches keep the
 // arrival order.
 type batcher struct {
+	// now is the receive time stamped on samples, refreshed every linger
+	// (reading the clock per message costs more than the whole decode of
+	// a one-sample message on this VM; ms resolution is plenty here).
+	now atomic.Int64
 	mu  sync.Mutex
 	s   *Source
 	dec *payload.Decoder
@@ -27,7 +32,9 @@ type batcher struct {
 func newBatcher(s *Source, put func([]ingest.Sample)) *batcher {
 	dec := payload.NewDecoder(s.format)
 	dec.Precision = s.cfg.LinePrecision
-	return &batcher{s: s, dec: dec, max: s.cfg.BatchSamples, put: put, buf: make([]ingest.Sample, 0, s.cfg.BatchSamples)}
+	b := &batcher{s: s, dec: dec, max: s.cfg.BatchSamples, put: put, buf: make([]ingest.Sample, 0, s.cfg.BatchSamples)}
+	b.now.Store(s.clock.Now().UnixNano())
+	return b
 }
 
 // add decodes one message into the pending batch and returns the samples
@@ -36,7 +43,7 @@ func (b *batcher) add(subject string, data []byte, withAdded func(added []ingest
 	b.mu.Lock()
 	defer b.mu.Unlock()
 	n0 := len(b.buf)
-	b.buf = b.s.decodeInto(b.dec, subject, data, b.buf)
+	b.buf = b.s.decodeInto(b.dec, subject, data, time.Unix(0, b.now.Load()), b.buf)
 	if withAdded != nil {
 		withAdded(b.buf[n0:])
 	}
@@ -66,6 +73,7 @@ func (b *batcher) run(ctx context.Context, linger time.Duration) {
 			b.mu.Unlock()
 			return
 		case <-t.C:
+			b.now.Store(b.s.clock.Now().UnixNano())
 			b.mu.Lock()
 			b.flushLocked()
 			b.mu.Unlock()

@@ -380,8 +380,7 @@ func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
 
 // decodeInto decodes one message, appending its samples to dst, counting
 // and logging failures (once per tag, or subject, per minute).
-func (s *Source) decodeInto(dec *payload.Decoder, subject string, data []byte, dst []ingest.Sample) []ingest.Sample {
-	now := s.clock.Now()
+func (s *Source) decodeInto(dec *payload.Decoder, subject string, data []byte, now time.Time, dst []ingest.Sample) []ingest.Sample {
 	if s.metrics != nil {
 		s.metrics.Messages.Add(1)
 	}
