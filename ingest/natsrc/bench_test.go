@@ -163,7 +163,7 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 		if time.Now().After(deadline) {
 			b.Fatalf("pipeline: accepted %d of %d", met.Accepted.Load(), e2eSamples)
 		}
-		time.Sleep(200 * time.Microsecond)
+		time.Sleep(time.Millisecond)
 	}
 	el := time.Since(t0)
 	// Every message must also be acknowledged (after the next tick and
