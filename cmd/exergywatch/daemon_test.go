@@ -1066,7 +1066,11 @@ func TestBadInputThroughDaemon(t *testing.T) {
 
 	w := newNATSWitness(t, ns.ClientURL())
 	defer w.close()
-	var f *feeder
+	raw, err := nats.Connect(ns.ClientURL()) // the faulty publishers
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer raw.Close()
 	inf := 0
 	mutate := func(e time.Duration, rs []plantsim.Reading) []plantsim.Reading {
 		out := rs[:0]
@@ -1076,11 +1080,11 @@ func TestBadInputThroughDaemon(t *testing.T) {
 				inf++
 				switch inf % 3 {
 				case 0:
-					f.publishRaw("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=NaN"))
+					_ = raw.Publish("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=NaN"))
 				case 1:
-					f.publishRaw("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=+Inf"))
+					_ = raw.Publish("quillmoor.tags.hp-turbine", []byte("QM.HP1.TT102 value=+Inf"))
 				default:
-					f.publishRaw("quillmoor.tags.hp-turbine", []byte(`{"tag": "QM.HP1.TT102", "value": 1e400}`))
+					_ = raw.Publish("quillmoor.tags.hp-turbine", []byte(`{"tag": "QM.HP1.TT102", "value": 1e400}`))
 				}
 				continue
 			case r.Tag == "QM.FP1.TT302":
@@ -1091,7 +1095,7 @@ func TestBadInputThroughDaemon(t *testing.T) {
 				continue
 			case r.Tag == "QM.RC1.PT601":
 				for _, p := range malformed {
-					f.publishRaw("quillmoor.tags.nh3-compressor", p)
+					_ = raw.Publish("quillmoor.tags.nh3-compressor", p)
 				}
 			}
 			out = append(out, r)
@@ -1099,7 +1103,7 @@ func TestBadInputThroughDaemon(t *testing.T) {
 		return out
 	}
 	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
-	f = startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, mutate)
+	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, mutate)
 	defer f.stop()
 	waitFor(t, 30*time.Second, "20 usable nh3-compressor records and 4 s of lp-turbine", func() bool {
 		return d.countWhere("nh3-compressor", usable) >= 20 && time.Since(f.start) > 4*time.Second

@@ -163,11 +163,6 @@ func startFeeder(t testing.TB, url string, plant *plantsim.Plant, period time.Du
 	return f
 }
 
-// publishRaw sends one payload as it is (malformed input tests).
-func (f *feeder) publishRaw(subject string, payload []byte) {
-	_ = f.nc.Publish(subject, payload)
-}
-
 func (f *feeder) stop() {
 	f.cancel()
 	<-f.done
