@@ -844,3 +844,19 @@ func (h *logCapture) all() string {
 	defer h.mu.Unlock()
 	return strings.Join(*h.lines, "\n")
 }
+
+func marshalTree(t testing.TB, tr tree) []byte {
+	t.Helper()
+	b, err := yaml.Marshal(map[string]any(tr))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
+}
+
+func writeFile(t testing.TB, path string, b []byte) {
+	t.Helper()
+	if err := os.WriteFile(path, b, 0o600); err != nil {
+		t.Fatal(err)
+	}
+}
