@@ -232,7 +232,12 @@ func (s *Source) Options() ([]nats.Option, error) {
 				s.downSince = s.clock.Now()
 			}
 			s.mu.Unlock()
-			s.log.Warn("nats disconnected", "err", err)
+			if err == nil {
+				// Our own Close (shutdown, reload): not a fault.
+				s.log.Debug("nats connection closed")
+			} else {
+				s.log.Warn("nats disconnected", "err", err)
+			}
 		}),
 		nats.ReconnectHandler(func(nc *nats.Conn) {
 			s.mu.Lock()
