@@ -13,14 +13,14 @@ import (
 // is refined on the forward equation (region3.go).
 
 var (
-	t3aphPoly = xcompile(t3aph)
-	t3bphPoly = xcompile(t3bph)
-	v3aphPoly = xcompile(v3aph)
-	v3bphPoly = xcompile(v3bph)
-	t3apsPoly = xcompile(t3aps)
-	t3bpsPoly = xcompile(t3bps)
-	v3apsPoly = xcompile(v3aps)
-	v3bpsPoly = xcompile(v3bps)
+	t3aphPoly = compile(t3aph)
+	t3bphPoly = compile(t3bph)
+	v3aphPoly = compile(v3aph)
+	v3bphPoly = compile(v3bph)
+	t3apsPoly = compile(t3aps)
+	t3bpsPoly = compile(t3bps)
+	v3apsPoly = compile(v3aps)
+	v3bpsPoly = compile(v3bps)
 )
 
 // h3ab is the enthalpy (J/kg) on the boundary between subregions 3a and 3b
@@ -149,36 +149,36 @@ type v3sub struct {
 	vs, ps, ts, a, b float64
 	c, d             float64 // 1, 0.5 or 0.25
 	e                int     // 1 or 4; 0 marks the exponential form of 3n
-	poly             *xpoly
+	poly             *gpoly
 }
 
 var v3subs = [26]v3sub{
-	{0.0024, 100e6, 760, 0.085, 0.817, 1, 1, 1, xcompile(v3apt)},
-	{0.0041, 100e6, 860, 0.280, 0.779, 1, 1, 1, xcompile(v3bpt)},
-	{0.0022, 40e6, 690, 0.259, 0.903, 1, 1, 1, xcompile(v3cpt)},
-	{0.0029, 40e6, 690, 0.559, 0.939, 1, 1, 4, xcompile(v3dpt)},
-	{0.0032, 40e6, 710, 0.587, 0.918, 1, 1, 1, xcompile(v3ept)},
-	{0.0064, 40e6, 730, 0.587, 0.891, 0.5, 1, 4, xcompile(v3fpt)},
-	{0.0027, 25e6, 660, 0.872, 0.971, 1, 1, 4, xcompile(v3gpt)},
-	{0.0032, 25e6, 660, 0.898, 0.983, 1, 1, 4, xcompile(v3hpt)},
-	{0.0041, 25e6, 660, 0.910, 0.984, 0.5, 1, 4, xcompile(v3ipt)},
-	{0.0054, 25e6, 670, 0.875, 0.964, 0.5, 1, 4, xcompile(v3jpt)},
-	{0.0077, 25e6, 680, 0.802, 0.935, 1, 1, 1, xcompile(v3kpt)},
-	{0.0026, 24e6, 650, 0.908, 0.989, 1, 1, 4, xcompile(v3lpt)},
-	{0.0028, 23e6, 650, 1.000, 0.997, 1, 0.25, 1, xcompile(v3mpt)},
-	{0.0031, 23e6, 650, 0.976, 0.997, 1, 1, 0, xcompile(v3npt)},
-	{0.0034, 23e6, 650, 0.974, 0.996, 0.5, 1, 1, xcompile(v3opt)},
-	{0.0041, 23e6, 650, 0.972, 0.997, 0.5, 1, 1, xcompile(v3ppt)},
-	{0.0022, 23e6, 650, 0.848, 0.983, 1, 1, 4, xcompile(v3qpt)},
-	{0.0054, 23e6, 650, 0.874, 0.982, 1, 1, 1, xcompile(v3rpt)},
-	{0.0022, 21e6, 640, 0.886, 0.990, 1, 1, 4, xcompile(v3spt)},
-	{0.0088, 20e6, 650, 0.803, 1.020, 1, 1, 1, xcompile(v3tpt)},
-	{0.0026, 23e6, 650, 0.902, 0.988, 1, 1, 1, xcompile(v3upt)},
-	{0.0031, 23e6, 650, 0.960, 0.995, 1, 1, 1, xcompile(v3vpt)},
-	{0.0039, 23e6, 650, 0.959, 0.995, 1, 1, 4, xcompile(v3wpt)},
-	{0.0049, 23e6, 650, 0.910, 0.988, 1, 1, 1, xcompile(v3xpt)},
-	{0.0031, 22e6, 650, 0.996, 0.994, 1, 1, 4, xcompile(v3ypt)},
-	{0.0038, 22e6, 650, 0.993, 0.994, 1, 1, 4, xcompile(v3zpt)},
+	{0.0024, 100e6, 760, 0.085, 0.817, 1, 1, 1, compile(v3apt)},
+	{0.0041, 100e6, 860, 0.280, 0.779, 1, 1, 1, compile(v3bpt)},
+	{0.0022, 40e6, 690, 0.259, 0.903, 1, 1, 1, compile(v3cpt)},
+	{0.0029, 40e6, 690, 0.559, 0.939, 1, 1, 4, compile(v3dpt)},
+	{0.0032, 40e6, 710, 0.587, 0.918, 1, 1, 1, compile(v3ept)},
+	{0.0064, 40e6, 730, 0.587, 0.891, 0.5, 1, 4, compile(v3fpt)},
+	{0.0027, 25e6, 660, 0.872, 0.971, 1, 1, 4, compile(v3gpt)},
+	{0.0032, 25e6, 660, 0.898, 0.983, 1, 1, 4, compile(v3hpt)},
+	{0.0041, 25e6, 660, 0.910, 0.984, 0.5, 1, 4, compile(v3ipt)},
+	{0.0054, 25e6, 670, 0.875, 0.964, 0.5, 1, 4, compile(v3jpt)},
+	{0.0077, 25e6, 680, 0.802, 0.935, 1, 1, 1, compile(v3kpt)},
+	{0.0026, 24e6, 650, 0.908, 0.989, 1, 1, 4, compile(v3lpt)},
+	{0.0028, 23e6, 650, 1.000, 0.997, 1, 0.25, 1, compile(v3mpt)},
+	{0.0031, 23e6, 650, 0.976, 0.997, 1, 1, 0, compile(v3npt)},
+	{0.0034, 23e6, 650, 0.974, 0.996, 0.5, 1, 1, compile(v3opt)},
+	{0.0041, 23e6, 650, 0.972, 0.997, 0.5, 1, 1, compile(v3ppt)},
+	{0.0022, 23e6, 650, 0.848, 0.983, 1, 1, 4, compile(v3qpt)},
+	{0.0054, 23e6, 650, 0.874, 0.982, 1, 1, 1, compile(v3rpt)},
+	{0.0022, 21e6, 640, 0.886, 0.990, 1, 1, 4, compile(v3spt)},
+	{0.0088, 20e6, 650, 0.803, 1.020, 1, 1, 1, compile(v3tpt)},
+	{0.0026, 23e6, 650, 0.902, 0.988, 1, 1, 1, compile(v3upt)},
+	{0.0031, 23e6, 650, 0.960, 0.995, 1, 1, 1, compile(v3vpt)},
+	{0.0039, 23e6, 650, 0.959, 0.995, 1, 1, 4, compile(v3wpt)},
+	{0.0049, 23e6, 650, 0.910, 0.988, 1, 1, 1, compile(v3xpt)},
+	{0.0031, 22e6, 650, 0.996, 0.994, 1, 1, 4, compile(v3ypt)},
+	{0.0038, 22e6, 650, 0.993, 0.994, 1, 1, 4, compile(v3zpt)},
 }
 
 // v3subEval evaluates the v(p,T) equation of subregion sub ('a'..'z') at

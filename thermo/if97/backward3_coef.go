@@ -15,7 +15,7 @@ package if97
 // Tsat(h,s) rest on the release check values (10 digits, every table).
 
 // t3aph is IAPWS SR3-03(2014) Eq. 2: T3a(p,h), coefficients I_i, J_i, n_i of its Table 3.
-var t3aph = []xterm{
+var t3aph = []ijn{
 	{-12, 0, -0.133645667811215e-6},
 	{-12, 1, 0.455912656802978e-5},
 	{-12, 2, -0.146294640700979e-4},
@@ -50,7 +50,7 @@ var t3aph = []xterm{
 }
 
 // t3bph is IAPWS SR3-03(2014) Eq. 3: T3b(p,h), coefficients I_i, J_i, n_i of its Table 4.
-var t3bph = []xterm{
+var t3bph = []ijn{
 	{-12, 0, 0.323254573644920e-4},
 	{-12, 1, -0.127575556587181e-3},
 	{-10, 0, -0.475851877356068e-3},
@@ -87,7 +87,7 @@ var t3bph = []xterm{
 }
 
 // v3aph is IAPWS SR3-03(2014) Eq. 4: v3a(p,h), coefficients I_i, J_i, n_i of its Table 6.
-var v3aph = []xterm{
+var v3aph = []ijn{
 	{-12, 6, 0.529944062966028e-2},
 	{-12, 8, -0.170099690234461},
 	{-12, 12, 0.111323814312927e2},
@@ -123,7 +123,7 @@ var v3aph = []xterm{
 }
 
 // v3bph is IAPWS SR3-03(2014) Eq. 5: v3b(p,h), coefficients I_i, J_i, n_i of its Table 7.
-var v3bph = []xterm{
+var v3bph = []ijn{
 	{-12, 0, -0.225196934336318e-8},
 	{-12, 1, 0.140674363313486e-7},
 	{-8, 0, 0.233784085280560e-5},
@@ -157,7 +157,7 @@ var v3bph = []xterm{
 }
 
 // t3aps is IAPWS SR3-03(2014) Eq. 6: T3a(p,s), coefficients I_i, J_i, n_i of its Table 10.
-var t3aps = []xterm{
+var t3aps = []ijn{
 	{-12, 28, 0.150042008263875e10},
 	{-12, 32, -0.159397258480424e12},
 	{-10, 4, 0.502181140217975e-3},
@@ -194,7 +194,7 @@ var t3aps = []xterm{
 }
 
 // t3bps is IAPWS SR3-03(2014) Eq. 7: T3b(p,s), coefficients I_i, J_i, n_i of its Table 11.
-var t3bps = []xterm{
+var t3bps = []ijn{
 	{-12, 1, 0.527111701601660},
 	{-12, 3, -0.401317830052742e2},
 	{-12, 4, 0.153020073134484e3},
@@ -226,7 +226,7 @@ var t3bps = []xterm{
 }
 
 // v3aps is IAPWS SR3-03(2014) Eq. 8: v3a(p,s), coefficients I_i, J_i, n_i of its Table 13.
-var v3aps = []xterm{
+var v3aps = []ijn{
 	{-12, 10, 0.795544074093975e2},
 	{-12, 12, -0.238261242984590e4},
 	{-12, 14, 0.176813100617787e5},
@@ -258,7 +258,7 @@ var v3aps = []xterm{
 }
 
 // v3bps is IAPWS SR3-03(2014) Eq. 9: v3b(p,s), coefficients I_i, J_i, n_i of its Table 14.
-var v3bps = []xterm{
+var v3bps = []ijn{
 	{-12, 0, 0.591599780322238e-4},
 	{-12, 1, -0.185465997137856e-2},
 	{-12, 2, 0.104190510480013e-1},

@@ -16,7 +16,7 @@ package if97
 
 // v3apt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3a (Eq. 4).
-var v3apt = []xterm{
+var v3apt = []ijn{
 	{-12, 5, 0.110879558823853e-2},
 	{-12, 10, 0.572616740810616e3},
 	{-12, 12, -0.767051948380852e5},
@@ -51,7 +51,7 @@ var v3apt = []xterm{
 
 // v3bpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3b (Eq. 4).
-var v3bpt = []xterm{
+var v3bpt = []ijn{
 	{-12, 10, -0.827670470003621e-1},
 	{-12, 12, 0.416887126010565e2},
 	{-10, 8, 0.483651982197059e-1},
@@ -88,7 +88,7 @@ var v3bpt = []xterm{
 
 // v3cpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3c (Eq. 4).
-var v3cpt = []xterm{
+var v3cpt = []ijn{
 	{-12, 6, 0.311967788763030e1},
 	{-12, 8, 0.276713458847564e5},
 	{-12, 10, 0.322583103403269e8},
@@ -128,7 +128,7 @@ var v3cpt = []xterm{
 
 // v3dpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3d (Eq. 4).
-var v3dpt = []xterm{
+var v3dpt = []ijn{
 	{-12, 4, -0.452484847171645e-9},
 	{-12, 6, 0.315210389538801e-4},
 	{-12, 7, -0.214991352047545e-2},
@@ -171,7 +171,7 @@ var v3dpt = []xterm{
 
 // v3ept: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3e (Eq. 4).
-var v3ept = []xterm{
+var v3ept = []ijn{
 	{-12, 14, 0.715815808404721e9},
 	{-12, 16, -0.114328360753449e12},
 	{-10, 3, 0.376531002015720e-11},
@@ -205,7 +205,7 @@ var v3ept = []xterm{
 
 // v3fpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3f (Eq. 4).
-var v3fpt = []xterm{
+var v3fpt = []ijn{
 	{0, -3, -0.251756547792325e-7},
 	{0, -2, 0.601307193668763e-5},
 	{0, -1, -0.100615977450049e-2},
@@ -252,7 +252,7 @@ var v3fpt = []xterm{
 
 // v3gpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3g (Eq. 4).
-var v3gpt = []xterm{
+var v3gpt = []ijn{
 	{-12, 7, 0.412209020652996e-4},
 	{-12, 12, -0.114987238280587e7},
 	{-12, 14, 0.948180885032080e10},
@@ -295,7 +295,7 @@ var v3gpt = []xterm{
 
 // v3hpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3h (Eq. 4).
-var v3hpt = []xterm{
+var v3hpt = []ijn{
 	{-12, 8, 0.561379678887577e-1},
 	{-12, 12, 0.774135421587083e10},
 	{-10, 4, 0.111482975877938e-8},
@@ -329,7 +329,7 @@ var v3hpt = []xterm{
 
 // v3ipt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3i (Eq. 4).
-var v3ipt = []xterm{
+var v3ipt = []ijn{
 	{0, 0, 0.106905684359136e1},
 	{0, 1, -0.148620857922333e1},
 	{0, 10, 0.259862256980408e15},
@@ -376,7 +376,7 @@ var v3ipt = []xterm{
 
 // v3jpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3j (Eq. 4).
-var v3jpt = []xterm{
+var v3jpt = []ijn{
 	{0, -1, -0.111371317395540e-3},
 	{0, 0, 0.100342892423685e1},
 	{0, 1, 0.530615581928979e1},
@@ -410,7 +410,7 @@ var v3jpt = []xterm{
 
 // v3kpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3k (Eq. 4).
-var v3kpt = []xterm{
+var v3kpt = []ijn{
 	{-2, 10, -0.401215699576099e9},
 	{-2, 12, 0.484501478318406e11},
 	{-1, -5, 0.394721471363678e-14},
@@ -449,7 +449,7 @@ var v3kpt = []xterm{
 
 // v3lpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3l (Eq. 4).
-var v3lpt = []xterm{
+var v3lpt = []ijn{
 	{-12, 14, 0.260702058647537e10},
 	{-12, 16, -0.188277213604704e15},
 	{-12, 18, 0.554923870289667e19},
@@ -497,7 +497,7 @@ var v3lpt = []xterm{
 
 // v3mpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3m (Eq. 4).
-var v3mpt = []xterm{
+var v3mpt = []ijn{
 	{0, 0, 0.811384363481847},
 	{3, 0, -0.568199310990094e4},
 	{8, 0, -0.178657198172556e11},
@@ -542,7 +542,7 @@ var v3mpt = []xterm{
 
 // v3npt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3n (Eq. 5).
-var v3npt = []xterm{
+var v3npt = []ijn{
 	{0, -12, 0.280967799943151e-38},
 	{3, -12, 0.614869006573609e-30},
 	{4, -12, 0.582238667048942e-27},
@@ -586,7 +586,7 @@ var v3npt = []xterm{
 
 // v3opt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3o (Eq. 4).
-var v3opt = []xterm{
+var v3opt = []ijn{
 	{0, -12, 0.128746023979718e-34},
 	{0, -4, -0.735234770382342e-11},
 	{0, -1, 0.28907869214915e-2},
@@ -615,7 +615,7 @@ var v3opt = []xterm{
 
 // v3ppt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3p (Eq. 4).
-var v3ppt = []xterm{
+var v3ppt = []ijn{
 	{0, -1, -0.982825342010366e-4},
 	{0, 0, 0.105145700850612e1},
 	{0, 1, 0.116033094095084e3},
@@ -647,7 +647,7 @@ var v3ppt = []xterm{
 
 // v3qpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3q (Eq. 4).
-var v3qpt = []xterm{
+var v3qpt = []ijn{
 	{-12, 10, -0.820433843259950e5},
 	{-12, 12, 0.473271518461586e11},
 	{-10, 6, -0.805950021005413e-1},
@@ -676,7 +676,7 @@ var v3qpt = []xterm{
 
 // v3rpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3r (Eq. 4).
-var v3rpt = []xterm{
+var v3rpt = []ijn{
 	{-8, 6, 0.144165955660863e-2},
 	{-8, 14, -0.701438599628258e13},
 	{-3, -3, -0.830946716459219e-16},
@@ -708,7 +708,7 @@ var v3rpt = []xterm{
 
 // v3spt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3s (Eq. 4).
-var v3spt = []xterm{
+var v3spt = []ijn{
 	{-12, 20, -0.532466612140254e23},
 	{-12, 24, 0.100415480000824e32},
 	{-10, 22, -0.191540001821367e30},
@@ -742,7 +742,7 @@ var v3spt = []xterm{
 
 // v3tpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3t (Eq. 4).
-var v3tpt = []xterm{
+var v3tpt = []ijn{
 	{0, 0, 0.155287249586268e1},
 	{0, 1, 0.664235115009031e1},
 	{0, 4, -0.289366236727210e4},
@@ -780,7 +780,7 @@ var v3tpt = []xterm{
 
 // v3upt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3u (Eq. 4).
-var v3upt = []xterm{
+var v3upt = []ijn{
 	{-12, 14, 0.122088349258355e18},
 	{-10, 10, 0.104216468608488e10},
 	{-10, 12, -0.882666931564652e16},
@@ -823,7 +823,7 @@ var v3upt = []xterm{
 
 // v3vpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3v (Eq. 4).
-var v3vpt = []xterm{
+var v3vpt = []ijn{
 	{-10, -8, -0.415652812061591e-54},
 	{-8, -12, 0.177441742924043e-60},
 	{-6, -12, -0.357078668203377e-54},
@@ -867,7 +867,7 @@ var v3vpt = []xterm{
 
 // v3wpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3w (Eq. 4).
-var v3wpt = []xterm{
+var v3wpt = []ijn{
 	{-12, 8, -0.586219133817016e-7},
 	{-12, 14, -0.894460355005526e11},
 	{-10, -1, 0.531168037519774e-30},
@@ -907,7 +907,7 @@ var v3wpt = []xterm{
 
 // v3xpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3x (Eq. 4).
-var v3xpt = []xterm{
+var v3xpt = []ijn{
 	{-8, 14, 0.377373741298151e19},
 	{-6, 10, -0.507100883722913e13},
 	{-5, 10, -0.10336322559886e16},
@@ -948,7 +948,7 @@ var v3xpt = []xterm{
 
 // v3ypt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3y (Eq. 4).
-var v3ypt = []xterm{
+var v3ypt = []ijn{
 	{0, -3, -0.525597995024633e-9},
 	{0, 1, 0.583441305228407e4},
 	{0, 5, -0.134778968457925e17},
@@ -973,7 +973,7 @@ var v3ypt = []xterm{
 
 // v3zpt: IAPWS SR5-05(2016), coefficients I_i, J_i, n_i of the v(p,T)
 // equation of subregion 3z (Eq. 4).
-var v3zpt = []xterm{
+var v3zpt = []ijn{
 	{-8, 3, 0.24400789229065e-10},
 	{-6, 6, -0.463057430331242e7},
 	{-5, 6, 0.728803274777712e10},

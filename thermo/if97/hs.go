@@ -8,15 +8,15 @@ import "math"
 // range checks; they are starting values and region locators for flashHS.
 
 var (
-	p3ahsPoly  = xcompile(p3ahs)
-	p3bhsPoly  = xcompile(p3bhs)
-	h1sPoly    = xcompile(h1sTerms)
-	h3asPoly   = xcompile(h3asTerms)
-	h2absPoly  = xcompile(h2absTerms)
-	h2c3bsPoly = xcompile(h2c3bsTerms)
-	hb13sPoly  = xcompile(hb13sTerms)
-	tb23hsPoly = xcompile(tb23hsTerms)
-	t4hsPoly   = xcompile(t4hsTerms)
+	p3ahsPoly  = compile(p3ahs)
+	p3bhsPoly  = compile(p3bhs)
+	h1sPoly    = compile(h1sTerms)
+	h3asPoly   = compile(h3asTerms)
+	h2absPoly  = compile(h2absTerms)
+	h2c3bsPoly = compile(h2c3bsTerms)
+	hb13sPoly  = compile(hb13sTerms)
+	tb23hsPoly = compile(tb23hsTerms)
+	t4hsPoly   = compile(t4hsTerms)
 )
 
 // p3hs is the backward pressure (Pa) of region 3 at h (J/kg), s (J/(kg·K)),

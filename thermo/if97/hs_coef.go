@@ -15,7 +15,7 @@ package if97
 // Tsat(h,s) rest on the release check values (10 digits, every table).
 
 // p3ahs is IAPWS SR4-04(2014) Eq. 1: p3a(h,s), coefficients I_i, J_i, n_i.
-var p3ahs = []xterm{
+var p3ahs = []ijn{
 	{0, 0, 0.770889828326934e1},
 	{0, 1, -0.260835009128688e2},
 	{0, 5, 0.267416218930389e3},
@@ -52,7 +52,7 @@ var p3ahs = []xterm{
 }
 
 // p3bhs is IAPWS SR4-04(2014) Eq. 2: p3b(h,s), coefficients I_i, J_i, n_i.
-var p3bhs = []xterm{
+var p3bhs = []ijn{
 	{-12, 2, 0.125244360717979e-12},
 	{-12, 10, -0.126599322553713e-1},
 	{-12, 12, 0.506878030140626e1},
@@ -91,7 +91,7 @@ var p3bhs = []xterm{
 }
 
 // h1sTerms is IAPWS SR4-04(2014) Eq. 3: saturated-liquid boundary h'1(s), coefficients I_i, J_i, n_i.
-var h1sTerms = []xterm{
+var h1sTerms = []ijn{
 	{0, 14, 0.332171191705237},
 	{0, 36, 0.611217706323496e-3},
 	{1, 3, -0.882092478906822e1},
@@ -122,7 +122,7 @@ var h1sTerms = []xterm{
 }
 
 // h3asTerms is IAPWS SR4-04(2014) Eq. 4: saturated-liquid boundary h'3a(s), coefficients I_i, J_i, n_i.
-var h3asTerms = []xterm{
+var h3asTerms = []ijn{
 	{0, 1, 0.822673364673336},
 	{0, 4, 0.181977213534479},
 	{0, 10, -0.112000260313624e-1},
@@ -145,7 +145,7 @@ var h3asTerms = []xterm{
 }
 
 // h2absTerms is IAPWS SR4-04(2014) Eq. 5: saturated-vapour boundary h"2ab(s), coefficients I_i, J_i, n_i.
-var h2absTerms = []xterm{
+var h2absTerms = []ijn{
 	{1, 8, -0.524581170928788e3},
 	{1, 24, -0.926947218142218e7},
 	{2, 4, -0.237385107491666e3},
@@ -179,7 +179,7 @@ var h2absTerms = []xterm{
 }
 
 // h2c3bsTerms is IAPWS SR4-04(2014) Eq. 6: saturated-vapour boundary h"2c3b(s), coefficients I_i, J_i, n_i.
-var h2c3bsTerms = []xterm{
+var h2c3bsTerms = []ijn{
 	{0, 0, 0.104351280732769e1},
 	{0, 3, -0.227807912708513e1},
 	{0, 4, 0.180535256723202e1},
@@ -199,7 +199,7 @@ var h2c3bsTerms = []xterm{
 }
 
 // hb13sTerms is IAPWS SR4-04(2014) Eq. 7: boundary between regions 1 and 3, hB13(s), coefficients I_i, J_i, n_i.
-var hb13sTerms = []xterm{
+var hb13sTerms = []ijn{
 	{0, 0, 0.913965547600543},
 	{1, -2, -0.430944856041991e-4},
 	{1, 2, 0.603235694765419e2},
@@ -209,7 +209,7 @@ var hb13sTerms = []xterm{
 }
 
 // tb23hsTerms is IAPWS SR4-04(2014) Eq. 8: boundary between regions 2 and 3, TB23(h,s), coefficients I_i, J_i, n_i.
-var tb23hsTerms = []xterm{
+var tb23hsTerms = []ijn{
 	{-12, 10, 0.629096260829810e-3},
 	{-10, 8, -0.823453502583165e-3},
 	{-8, 3, 0.515446951519474e-7},
@@ -238,7 +238,7 @@ var tb23hsTerms = []xterm{
 }
 
 // t4hsTerms is IAPWS SR4-04(2014) Eq. 9: Tsat(h,s) for region 4, coefficients I_i, J_i, n_i.
-var t4hsTerms = []xterm{
+var t4hsTerms = []ijn{
 	{0, 0, 0.179882673606601},
 	{0, 3, -0.267507455199603},
 	{0, 12, 0.116276722612600e1},

@@ -15,7 +15,7 @@ import (
 // r3n1 is n1 of R7-97(2012) Table 30, the coefficient of ln(delta).
 const r3n1 = 0.10658070028513e1
 
-var region3Poly = xcompile(r3terms)
+var region3Poly = compile(r3terms)
 
 // r3sums holds the reduced Helmholtz sums at one (rho, T):
 // f = phi, d = delta·phi_delta, dd = delta²·phi_deltadelta, t = tau·phi_tau,
@@ -29,8 +29,8 @@ func region3Sums(rho, T float64) r3sums {
 	// tables (the generic evaluator's are sized for every equation).
 	var pa [r3nI]float64
 	var pb [r3nJ]float64
-	xfillPow(pa[:], delta, 0)
-	xfillPow(pb[:], tau, 0)
+	fillPow(pa[:], delta, 0)
+	fillPow(pb[:], tau, 0)
 	var g struct{ g, gi, gj, gii, gjj, gij float64 }
 	for k := range region3Poly.t {
 		t := &region3Poly.t[k]
@@ -92,8 +92,8 @@ func p3(rho, T float64) (p, dpdrho float64) {
 	tau := Tc / T
 	var pa [r3nI]float64
 	var pb [r3nJ]float64
-	xfillPow(pa[:], delta, 0)
-	xfillPow(pb[:], tau, 0)
+	fillPow(pa[:], delta, 0)
+	fillPow(pb[:], tau, 0)
 	d, dd := r3n1, -r3n1
 	for k := range region3Poly.t {
 		t := &region3Poly.t[k]

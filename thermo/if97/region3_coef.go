@@ -17,7 +17,7 @@ package if97
 // r3terms are the coefficients and exponents of the region-3 dimensionless
 // Helmholtz free energy, IAPWS R7-97(2012) Table 30: terms i = 2..40
 // (I_i, J_i, n_i) of Eq. 28; the term i = 1, n1 ln(delta), is r3n1.
-var r3terms = []xterm{
+var r3terms = []ijn{
 	{0, 0, -0.15732845290239e2},
 	{0, 1, 0.20944396974307e2},
 	{0, 2, -0.76867707878716e1},
