@@ -142,6 +142,8 @@ func (cfg *Config) checkSources(c *checker) {
 			}
 			if len(s.NATS.Subjects) == 0 {
 				c.add(item+".nats.subjects", "no subjects", "list the subjects carrying tag samples, e.g. plant.>")
+			} else if err := s.NATS.Validate(); err != nil {
+				c.add(item+".nats", err.Error(), "")
 			}
 		case "opcua":
 			if s.OPCUA == nil || s.NATS != nil {
@@ -153,6 +155,8 @@ func (cfg *Config) checkSources(c *checker) {
 			}
 			if s.OPCUA.Endpoint == "" {
 				c.add(item+".opcua.endpoint", "no endpoint", "e.g. opc.tcp://host:4840")
+			} else if err := s.OPCUA.Validate(); err != nil {
+				c.add(item+".opcua", err.Error(), "")
 			}
 		default:
 			c.add(item+".kind", fmt.Sprintf("unknown source kind %q", s.Kind), "use nats or opcua")

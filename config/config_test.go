@@ -67,7 +67,7 @@ func TestUnknownKeyHasPosition(t *testing.T) {
 }
 
 func TestResolveSecrets(t *testing.T) {
-	doc := "site: {name: a}\nsources:\n  - kind: nats\n    nats: {subjects: [a.>], token: env:EXW_T}\n"
+	doc := "site: {name: a}\nsources:\n  - kind: nats\n    nats: {urls: [nats://127.0.0.1:4222], subjects: [a.>], token: env:EXW_T}\n"
 	c, err := Parse("s.yaml", []byte(doc))
 	if err != nil {
 		t.Fatal(err)

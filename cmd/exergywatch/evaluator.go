@@ -177,6 +177,11 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 		if md == mode.Running {
 			v := e.steady.Update(now, sv)
 			steadyNow, e.lastR = v.Steady, v.R
+		} else {
+			// A verdict must not outlive a stop: after a restart at a new
+			// load the machine proves steady state afresh.
+			e.steady.Reset()
+			e.lastR = nil
 		}
 	} else {
 		steadyNow = md == mode.Running

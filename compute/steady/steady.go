@@ -251,6 +251,14 @@ func (d *Detector) Update(now time.Time, values map[string]float64) Verdict {
 	return v
 }
 
+// Reset forgets every filter's history: after a stop the machine must prove
+// steady state again from fresh samples.
+func (d *Detector) Reset() {
+	for _, f := range d.filters {
+		f.S = FilterState{}
+	}
+}
+
 // States returns the filter states for persistence.
 func (d *Detector) States() map[string]FilterState {
 	out := make(map[string]FilterState, len(d.filters))

@@ -125,6 +125,10 @@ func TestDetectorAllKeys(t *testing.T) {
 	if v.Steady || len(v.Transient) != 1 || v.Transient[0] != "p_out" {
 		t.Errorf("missing key must make the machine not steady: %+v", v)
 	}
+	d.Reset()
+	if v := d.Update(now.Add(2*time.Second), map[string]float64{"flow": 10, "p_out": 2}); v.Steady {
+		t.Errorf("steady right after Reset: %+v", v)
+	}
 	// Persistence round trip.
 	d2, _ := NewDetector(Config{Warmup: 2}, []string{"flow", "p_out"})
 	d2.Restore(d.States())

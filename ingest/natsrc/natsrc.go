@@ -537,3 +537,7 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 	}
 	return nil
 }
+
+// Validate checks the settings as New will, without connecting (for
+// `exergywatch check`).
+func (c Config) Validate() error { return c.defaults() }

@@ -616,3 +616,7 @@ func Float(v *ua.Variant) (float64, error) {
 	}
 	return 0, fmt.Errorf("%w: %s", ErrNotNumeric, v.Type())
 }
+
+// Validate checks the settings as New will, without connecting (for
+// `exergywatch check`).
+func (c Config) Validate() error { return c.defaults() }
