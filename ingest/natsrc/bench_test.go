@@ -115,6 +115,14 @@ func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int, acked bool) fl
 // -> release (acks). The rate is timed until every sample was taken into a
 // window; then it waits (untimed) until every message was acknowledged.
 func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metrics) {
+	return pipelineRunMode(b, url, n, perMsg, ModeJetStream, nil)
+}
+
+// pipelineRunMode is pipelineRun for either delivery mode. In core mode
+// publish (called once the subscription is up) sends the stream; the rate
+// is timed from the first message until every sample was taken into a
+// window or dropped at the full queue (counted in QueueDropped).
+func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publish func()) (float64, *ingest.Metrics) {
 	e2eMsgs := uint64(e2eSamples / perMsg)
 	tm, err := tagmap.Compile(e2eTagMap())
 	if err != nil {
@@ -126,8 +134,13 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 		b.Fatal(err)
 	}
 	q := ingest.NewQueue(256, met)
-	src, err := New(Config{URLs: []string{url}, Subjects: []string{"bench.>"}, Mode: ModeJetStream, Stream: "BENCH",
-		Durable: fmt.Sprintf("ew%d", n), FetchBatch: 512, AckFlush: 20 * time.Millisecond}, q, met, quietLog(), nil)
+	cfg := Config{URLs: []string{url}, Subjects: []string{"bench.>"}, Mode: ModeJetStream, Stream: "BENCH",
+		Durable: fmt.Sprintf("ew%d", n), FetchBatch: 512, AckFlush: 20 * time.Millisecond}
+	if mode == ModeCore {
+		cfg = Config{URLs: []string{url}, Subjects: []string{"benchc.>"}, Mode: ModeCore,
+			PendingMsgs: int(e2eMsgs) + 16, PendingBytes: 1 << 30}
+	}
+	src, err := New(cfg, q, met, quietLog(), nil)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -152,6 +165,10 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 	}()
 	go func() { srcDone <- src.Run(ctx) }()
 	deadline := time.Now().Add(2 * time.Minute)
+	if mode == ModeCore {
+		waitSubscribed(b, src, deadline)
+		go publish()
+	}
 	for met.Messages.Load() == 0 { // setup (connect, consumer) is not timed
 		if time.Now().After(deadline) {
 			b.Fatal("pipeline: no message")
@@ -159,7 +176,7 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 		time.Sleep(50 * time.Microsecond)
 	}
 	t0 := time.Now()
-	for met.Accepted.Load() < e2eSamples {
+	for met.Accepted.Load()+met.Reason(ingest.ReasonQueueFull) < e2eSamples {
 		if time.Now().After(deadline) {
 			b.Fatalf("pipeline: accepted %d of %d", met.Accepted.Load(), e2eSamples)
 		}
@@ -168,7 +185,7 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 	el := time.Since(t0)
 	// Every message must also be acknowledged (after the next tick and
 	// ack flush); not part of the timed throughput.
-	for met.Acked.Load() < e2eMsgs {
+	for mode == ModeJetStream && met.Acked.Load() < e2eMsgs {
 		if time.Now().After(deadline) {
 			b.Fatalf("pipeline: acked %d of %d messages", met.Acked.Load(), e2eMsgs)
 		}
@@ -178,7 +195,7 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 	<-srcDone
 	<-engDone
 	<-relDone
-	return float64(e2eSamples) / el.Seconds(), met
+	return float64(met.Accepted.Load()) / el.Seconds(), met
 }
 
 // BenchmarkEndToEndJetStream compares, in the same run and on the same
@@ -230,4 +247,134 @@ func median(v []float64) float64 {
 		return s[len(s)/2]
 	}
 	return (s[len(s)/2-1] + s[len(s)/2]) / 2
+}
+
+// corePayloads builds the core NATS stream in memory: the same
+// line-protocol samples as e2eFill, source times in the last seconds.
+func corePayloads(perMsg int) [][]byte {
+	start := time.Now().Add(-5 * time.Second)
+	base := []float64{40, 450, 5, 250, 300, 50, 3000, 95, 60, 290}
+	msgs := make([][]byte, e2eSamples/perMsg)
+	for j := range msgs {
+		var sb strings.Builder
+		for i := 0; i < perMsg; i++ {
+			k := j*perMsg + i
+			ts := start.Add(time.Duration(k) * 10 * time.Microsecond).UnixNano()
+			tag := k % e2eTags
+			fmt.Fprintf(&sb, "m%03d.t%d value=%g %d\n", tag/10, tag%10, base[tag%10]*(1+0.001*float64((k/e2eTags)%7)), ts)
+		}
+		msgs[j] = []byte(sb.String())
+	}
+	return msgs
+}
+
+// corePublish sends msgs on its own connection as fast as nats.go allows,
+// then flushes.
+func corePublish(b *testing.B, url string, msgs [][]byte) {
+	pc, err := nats.Connect(url)
+	if err != nil {
+		b.Error(err)
+		return
+	}
+	defer pc.Close()
+	for j, m := range msgs {
+		if err := pc.Publish(fmt.Sprintf("benchc.u%d", j%4), m); err != nil {
+			b.Error(err)
+			return
+		}
+	}
+	if err := pc.FlushTimeout(time.Minute); err != nil {
+		b.Error(err)
+	}
+}
+
+// waitSubscribed waits until the core source's subscription is up (the
+// server counts one more subscription than before the source connected).
+func waitSubscribed(b *testing.B, src *Source, deadline time.Time) {
+	select {
+	case <-src.Connected():
+	case <-time.After(time.Until(deadline)):
+		b.Fatal("pipeline: no connection")
+	}
+	// The subscription follows the connect; a flush round trip on the
+	// source's own connection is not reachable from here, so poll.
+	for !src.subscribed.Load() {
+		if time.Now().After(deadline) {
+			b.Fatal("pipeline: not subscribed")
+		}
+		time.Sleep(100 * time.Microsecond)
+	}
+}
+
+// bareCoreRun counts the messages of the core stream with a plain nats.go
+// subscription (same pending limits as the pipeline) and returns the
+// sample rate from the first to the last message.
+func bareCoreRun(b *testing.B, url string, msgs [][]byte, perMsg int) float64 {
+	nc, err := nats.Connect(url)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer nc.Close()
+	total := int64(len(msgs))
+	var count atomic.Int64
+	done := make(chan struct{})
+	var t0 time.Time
+	sub, err := nc.Subscribe("benchc.>", func(*nats.Msg) {
+		n := count.Add(1)
+		if n == 1 {
+			t0 = time.Now()
+		}
+		if n == total {
+			close(done)
+		}
+	})
+	if err != nil {
+		b.Fatal(err)
+	}
+	if err := sub.SetPendingLimits(len(msgs)+16, 1<<30); err != nil {
+		b.Fatal(err)
+	}
+	if err := nc.Flush(); err != nil { // subscription registered
+		b.Fatal(err)
+	}
+	go corePublish(b, url, msgs)
+	select {
+	case <-done:
+	case <-time.After(time.Minute):
+		b.Fatalf("bare core subscriber got %d of %d", count.Load(), total)
+	}
+	el := time.Since(t0)
+	_ = sub.Unsubscribe()
+	return float64(total*int64(perMsg)) / el.Seconds()
+}
+
+// BenchmarkEndToEndCore is BenchmarkEndToEndJetStream for core NATS (at
+// most once): a publisher sends the same 400 000 line-protocol samples (1,
+// 10 or 100 per message) once to a bare nats.go subscriber that only
+// counts them and once to the pipeline (source -> bounded queue ->
+// engine). Both subscriptions have the same pending limits (the whole
+// stream), so neither loses messages in the client; samples the pipeline
+// drops at its full queue are reported (dropped_%) and not counted in its
+// rate. Run with -benchtime=Nx; the rates are medians over N runs.
+func BenchmarkEndToEndCore(b *testing.B) {
+	ns := startNATS(b, baseOpts(b, false))
+	for _, perMsg := range []int{1, 10, 100} {
+		b.Run(fmt.Sprintf("samples_per_msg=%d", perMsg), func(b *testing.B) {
+			msgs := corePayloads(perMsg)
+			var bare, ours, dropped []float64
+			b.ResetTimer()
+			for n := 0; n < b.N; n++ {
+				bare = append(bare, bareCoreRun(b, ns.url(), msgs, perMsg))
+				r, met := pipelineRunMode(b, ns.url(), n, perMsg, ModeCore, func() { corePublish(b, ns.url(), msgs) })
+				ours = append(ours, r)
+				dropped = append(dropped, 100*float64(met.Reason(ingest.ReasonQueueFull))/e2eSamples)
+			}
+			b.StopTimer()
+			mb, mo := median(bare), median(ours)
+			b.ReportMetric(mb, "bare_samples/s")
+			b.ReportMetric(mo, "pipeline_samples/s")
+			b.ReportMetric(100*mo/mb, "pipeline_%_of_bare")
+			b.ReportMetric(median(dropped), "dropped_%")
+		})
+	}
 }

@@ -35,6 +35,7 @@ import (
 	"os"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/exergywatch/exergywatch/ingest"
@@ -192,6 +193,7 @@ type Source struct {
 	downSince  time.Time
 	connected  chan struct{} // closed on first connect (tests)
 	connOnce   sync.Once
+	subscribed atomic.Bool // core: every subscription is registered (tests, benchmarks)
 	lastGap    time.Duration
 	reconnects int
 }
@@ -378,6 +380,9 @@ func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
 		if err := sub.SetPendingLimits(s.cfg.PendingMsgs, s.cfg.PendingBytes); err != nil {
 			return fmt.Errorf("nats pending limits: %w", err)
 		}
+	}
+	if err := nc.Flush(); err == nil { // the server has the subscriptions
+		s.subscribed.Store(true)
 	}
 	<-ctx.Done()
 	return nil
