@@ -663,11 +663,11 @@ func TestStatusEndpoints(t *testing.T) {
 		Active   []struct {
 			Rule, State string
 		} `json:"active"`
-		// recent_events are compute.Event values encoded without JSON
-		// tags: Go field names, states as numbers (2 = firing).
+		// recent_events use the wire form of sinks.EventJSON.
 		Recent []struct {
-			Rule, Reason string
-			To           compute.AlertState
+			Rule   string `json:"rule"`
+			Reason string `json:"reason"`
+			To     string `json:"to"`
 		} `json:"recent_events"`
 	}
 	if code != http.StatusOK || json.Unmarshal([]byte(body), &av) != nil {
@@ -675,7 +675,7 @@ func TestStatusEndpoints(t *testing.T) {
 	}
 	found := false
 	for _, e := range av.Recent {
-		if e.Rule == "below-95" && e.To == compute.AlertFiring && strings.Contains(e.Reason, "always below 0.95") {
+		if e.Rule == "below-95" && e.To == "firing" && strings.Contains(e.Reason, "always below 0.95") {
 			found = true
 		}
 	}

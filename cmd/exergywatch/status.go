@@ -213,20 +213,24 @@ func (p *pipeline) status() statusView {
 }
 
 type alertsView struct {
-	Advisory string          `json:"advisory"`
-	Active   []alertView     `json:"active"`
-	Recent   []compute.Event `json:"recent_events"`
+	Advisory string            `json:"advisory"`
+	Active   []alertView       `json:"active"`
+	Recent   []sinks.EventJSON `json:"recent_events"`
 }
 
 func (p *pipeline) alertsView(n int) alertsView {
-	v := alertsView{Advisory: advisoryNote, Active: []alertView{}, Recent: []compute.Event{}}
+	v := alertsView{Advisory: advisoryNote, Active: []alertView{}, Recent: []sinks.EventJSON{}}
 	p.mu.Lock()
 	for _, id := range p.order {
 		v.Active = append(v.Active, p.evals[id].activeAlerts()...)
 	}
 	p.mu.Unlock()
 	if ev, err := p.state.RecentEvents("", n); err == nil {
-		v.Recent = ev
+		for _, e := range ev {
+			if j, err := sinks.EventToJSON(e); err == nil {
+				v.Recent = append(v.Recent, j)
+			}
+		}
 	}
 	sort.Slice(v.Active, func(i, j int) bool { return v.Active[i].Since.Before(v.Active[j].Since) })
 	return v
