@@ -12,6 +12,7 @@ import (
 	"github.com/exergywatch/exergywatch/compute/uncert"
 	"github.com/exergywatch/exergywatch/config/units"
 	"github.com/exergywatch/exergywatch/ingest"
+	"github.com/exergywatch/exergywatch/ingest/pipeline"
 	"github.com/exergywatch/exergywatch/ingest/tagmap"
 	"github.com/exergywatch/exergywatch/thermo/fluids"
 )
@@ -144,6 +145,8 @@ func (cfg *Config) checkSources(c *checker) {
 				c.add(item+".nats.subjects", "no subjects", "list the subjects carrying tag samples, e.g. plant.>")
 			} else if err := s.NATS.Validate(); err != nil {
 				c.add(item+".nats", err.Error(), "")
+			} else if err := pipeline.CheckAckWait(*s.NATS, cfg.Evaluation.Interval.D()); err != nil {
+				c.add(item+".nats.ack_wait", err.Error(), "raise ack_wait or shorten evaluation.interval")
 			}
 		case "opcua":
 			if s.OPCUA == nil || s.NATS != nil {

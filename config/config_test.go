@@ -38,6 +38,7 @@ func TestCrossChecks(t *testing.T) {
 		{"literal password", "      mode: core", "      mode: core\n      password: hunter2", "secrets are not written"},
 		{"unknown alert figure", "figure: isentropic_efficiency\n        kind: deviation\n        below: -0.03", "figure: isentropic_eficiency\n        kind: deviation\n        below: -0.03", "unknown figure"},
 		{"deviation without baseline", "    baseline: {isentropic_efficiency: 0.84}\n", "", "needs a baseline"},
+		{"jetstream ack_wait too short", "      mode: core", "      mode: jetstream\n      stream: QUILLMOOR\n      durable: exergywatch\n      ack_wait: 3s", "ack_wait"},
 		{"unknown sink kind", "kind: store", "kind: sqlite", "unknown sink kind"},
 		{"bad uncertainty", "T_inlet_class: rtd-A,", "T_inlet_class: rtd-Z,", "uncertainty"},
 		{"running signal unmapped", "signal: flow@inlet, above: 5kg/s}]\n    startup_time: 10s\n    steady: {dwell: 6s}\n    baseline: {isentropic_efficiency: 0.84}", "signal: speed@shaft, above: 5kg/s}]\n    startup_time: 10s\n    steady: {dwell: 6s}\n    baseline: {isentropic_efficiency: 0.84}", "not mapped"},

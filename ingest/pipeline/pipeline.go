@@ -81,19 +81,8 @@ func New(cfg Config, reg *prometheus.Registry, log *slog.Logger) (*Pipeline, err
 	}
 	p := &Pipeline{Engine: eng, Queue: ingest.NewQueue(cfg.QueueBatches, met), Metrics: met, tick: cfg.Tick, log: log}
 	for i, nc := range cfg.NATS {
-		if nc.Mode == natsrc.ModeJetStream {
-			// A message is acknowledged after the first tick that holds it
-			// plus the ack flush: AckWait must leave room for that.
-			aw, fl := nc.AckWait, nc.AckFlush
-			if aw == 0 {
-				aw = 2 * time.Minute
-			}
-			if fl == 0 {
-				fl = 100 * time.Millisecond
-			}
-			if aw <= 2*cfg.Tick+fl {
-				return nil, fmt.Errorf("%w: nats[%d] ack_wait %v must exceed 2 x tick %v + ack_flush %v", ErrConfig, i, aw, cfg.Tick, fl)
-			}
+		if err := CheckAckWait(nc, cfg.Tick); err != nil {
+			return nil, fmt.Errorf("nats[%d]: %w", i, err)
 		}
 		s, err := natsrc.New(nc, p.Queue, met, log, nil)
 		if err != nil {
@@ -109,6 +98,27 @@ func New(cfg Config, reg *prometheus.Registry, log *slog.Logger) (*Pipeline, err
 		p.OPCUA = append(p.OPCUA, s)
 	}
 	return p, nil
+}
+
+// CheckAckWait checks that a JetStream source's ack_wait leaves room for
+// the acknowledgement: a message is acknowledged after the first tick that
+// holds it plus the ack flush, so ack_wait must exceed 2 x tick + ack_flush
+// (else the server redelivers messages that are being evaluated).
+func CheckAckWait(nc natsrc.Config, tick time.Duration) error {
+	if nc.Mode != natsrc.ModeJetStream {
+		return nil
+	}
+	aw, fl := nc.AckWait, nc.AckFlush
+	if aw == 0 {
+		aw = 2 * time.Minute
+	}
+	if fl == 0 {
+		fl = 100 * time.Millisecond
+	}
+	if aw <= 2*tick+fl {
+		return fmt.Errorf("%w: ack_wait %v must exceed 2 x evaluation interval %v + ack_flush %v", ErrConfig, aw, tick, fl)
+	}
+	return nil
 }
 
 // Run runs every source and the engine until ctx ends, sending each tick's
