@@ -48,6 +48,63 @@ func TestAckRunsOnceAfterAllSamples(t *testing.T) {
 	}
 }
 
+func TestAckDoneN(t *testing.T) {
+	for _, tc := range []struct {
+		name   string
+		refs   int
+		steps  []int
+		runs   int // times fn ran after all steps
+		remain int
+	}{
+		{"one run for all", 5, []int{5}, 1, 0},
+		{"runs adding up", 5, []int{2, 3}, 1, 0},
+		{"short", 5, []int{2, 2}, 0, 1},
+		{"beyond the count ignored", 3, []int{2, 4, 1}, 1, 0},
+		{"zero and negative do nothing", 2, []int{0, -3}, 0, 2},
+		{"mixed with Done", 4, []int{1, -1, 2}, 1, 0}, // -1: one Done call
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			n := 0
+			a := ingest.NewAck(tc.refs, func() { n++ })
+			for i, k := range tc.steps {
+				if k == -1 && i > 0 {
+					a.Done()
+					continue
+				}
+				a.DoneN(k)
+			}
+			if n != tc.runs || a.Pending() != tc.remain {
+				t.Fatalf("fn ran %d times (want %d), pending %d (want %d)", n, tc.runs, a.Pending(), tc.remain)
+			}
+		})
+	}
+	var nilAck *ingest.Ack
+	nilAck.DoneN(3) // no panic
+}
+
+func TestQueueRecycle(t *testing.T) {
+	q := ingest.NewQueue(4, nil)
+	b := q.Buffer(16)
+	if len(b) != 0 || cap(b) < 16 {
+		t.Fatalf("Buffer(16): len %d cap %d", len(b), cap(b))
+	}
+	a := ingest.NewAck(1, nil)
+	b = append(b, ingest.Sample{Tag: "x", Value: 1, Ack: a})
+	q.Recycle(b)
+	r := q.Buffer(16)
+	if len(r) != 0 || cap(r) != cap(b) || &r[:1][0] != &b[0] {
+		t.Fatal("recycled batch not reused")
+	}
+	if s := r[:1][0]; s.Tag != "" || s.Ack != nil || s.Value != 0 {
+		t.Fatalf("recycled batch not cleared: %+v", s)
+	}
+	q.Recycle(r)
+	if big := q.Buffer(1024); cap(big) < 1024 {
+		t.Fatalf("Buffer(1024) returned cap %d", cap(big))
+	}
+	q.Recycle(nil) // no panic
+}
+
 func TestQueueOfferDropsAndCounts(t *testing.T) {
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(1, met)

@@ -9,6 +9,7 @@ import "context"
 // the broker instead of losing acknowledged data.
 type Queue struct {
 	ch      chan []Sample
+	free    chan []Sample // consumed batches for reuse (Recycle, Buffer)
 	metrics *Metrics
 }
 
@@ -17,7 +18,37 @@ func NewQueue(capacity int, m *Metrics) *Queue {
 	if capacity < 1 {
 		capacity = 1
 	}
-	return &Queue{ch: make(chan []Sample, capacity), metrics: m}
+	return &Queue{ch: make(chan []Sample, capacity), free: make(chan []Sample, min(capacity, 8)), metrics: m}
+}
+
+// Buffer returns an empty batch with room for at least n samples: a
+// recycled one when there is one, else a new one. Sources fill it and hand
+// it to Offer or Put.
+func (q *Queue) Buffer(n int) []Sample {
+	select {
+	case b := <-q.free:
+		if cap(b) >= n {
+			return b
+		}
+	default:
+	}
+	return make([]Sample, 0, n)
+}
+
+// Recycle gives back a batch taken from C once nothing refers to its
+// samples any more (the engine copies what it keeps), so that sources can
+// reuse the memory instead of allocating a new batch each time. The batch
+// is cleared first, so it keeps no tag, payload or acknowledgement alive.
+// Optional: a batch never recycled is simply collected.
+func (q *Queue) Recycle(b []Sample) {
+	if cap(b) == 0 {
+		return
+	}
+	clear(b)
+	select {
+	case q.free <- b[:0]:
+	default:
+	}
 }
 
 // Offer enqueues the batch without blocking. When the queue is full it drops

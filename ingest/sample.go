@@ -123,6 +123,19 @@ func (a *Ack) Done() {
 	}
 }
 
+// DoneN releases n references at once (n <= 0 does nothing); fn runs when
+// the count reaches zero. Releases beyond the count are ignored, as with
+// Done.
+func (a *Ack) DoneN(n int) {
+	if a == nil || n <= 0 {
+		return
+	}
+	left := a.n.Add(-int32(n))
+	if left <= 0 && left+int32(n) > 0 && a.fn != nil {
+		a.fn()
+	}
+}
+
 // Pending returns the number of references not yet released.
 func (a *Ack) Pending() int {
 	if a == nil {

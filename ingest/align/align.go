@@ -95,8 +95,16 @@ type Snapshot struct {
 	Reasons ingest.Reasons // machine-level reasons (skew)
 	Skew    time.Duration  // spread of the newest sample times of the inputs
 
-	acks []*ingest.Ack
+	acks []ackRun
 	once sync.Once
+}
+
+// ackRun is n references of one acknowledgement handle: consecutive
+// samples of one message for one machine are held as one run, so a
+// release costs one atomic operation per run instead of one per sample.
+type ackRun struct {
+	a *ingest.Ack
+	n int
 }
 
 // Release acknowledges the samples this snapshot holds. Safe to call more
@@ -106,15 +114,21 @@ func (s *Snapshot) Release() {
 		return
 	}
 	s.once.Do(func() {
-		for _, a := range s.acks {
-			a.Done()
+		for _, r := range s.acks {
+			r.a.DoneN(r.n)
 		}
 		s.acks = nil
 	})
 }
 
 // PendingAcks returns the number of sample acknowledgements held.
-func (s *Snapshot) PendingAcks() int { return len(s.acks) }
+func (s *Snapshot) PendingAcks() int {
+	n := 0
+	for _, r := range s.acks {
+		n += r.n
+	}
+	return n
+}
 
 type point struct {
 	t   int64 // unix ns
@@ -133,7 +147,7 @@ type machine struct {
 	name    string
 	tracks  []int // ungrouped signal indices
 	groups  []int
-	pending []*ingest.Ack
+	pending []ackRun
 }
 
 // Engine maps, checks and windows samples and builds snapshots. Its methods
@@ -147,6 +161,7 @@ type Engine struct {
 	tracks   []track
 	machines []*machine
 	byName   map[string]*machine
+	sigMach  []*machine // machine of each signal (by Signal.Index), nil for site tags
 }
 
 // New returns an engine. metrics and log may be nil.
@@ -184,6 +199,12 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 		}
 	}
 	sort.Slice(e.machines, func(i, j int) bool { return e.machines[i].name < e.machines[j].name })
+	e.sigMach = make([]*machine, len(m.Signals))
+	for _, s := range m.Signals {
+		if s.Machine != "" {
+			e.sigMach[s.Index] = e.byName[s.Machine]
+		}
+	}
 	return e, nil
 }
 
@@ -292,12 +313,16 @@ func (e *Engine) keep(sig *tagmap.Signal, s *ingest.Sample) {
 	if s.Ack == nil {
 		return
 	}
-	if sig.Machine == "" {
+	mc := e.sigMach[sig.Index]
+	if mc == nil {
 		s.Ack.Done()
 		return
 	}
-	mc := e.byName[sig.Machine]
-	mc.pending = append(mc.pending, s.Ack)
+	if k := len(mc.pending); k > 0 && mc.pending[k-1].a == s.Ack {
+		mc.pending[k-1].n++
+		return
+	}
+	mc.pending = append(mc.pending, ackRun{a: s.Ack, n: 1})
 }
 
 func (e *Engine) countReasons(rs ingest.Reasons) {
@@ -563,6 +588,7 @@ func (e *Engine) Run(ctx context.Context, q *ingest.Queue, ticks <-chan time.Tim
 		case b := <-q.C():
 			q.Took()
 			e.Ingest(b, clock.Now())
+			q.Recycle(b)
 		case t := <-ticks:
 			snaps := e.Evaluate(t)
 			select {

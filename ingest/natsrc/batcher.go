@@ -57,7 +57,7 @@ func (b *batcher) flushLocked() {
 		return
 	}
 	batch := b.buf
-	b.buf = make([]ingest.Sample, 0, b.max)
+	b.buf = b.s.q.Buffer(b.max)
 	b.put(batch)
 }
 
