@@ -165,8 +165,21 @@ func (c *Checker) medianMAD() (float64, float64) {
 	return med, (prev + cur) / 2
 }
 
+// searchSorted is sort.SearchFloat64s (the first index with s[k] >= v) as
+// a linear scan for windows of up to 32 values, where it is faster.
+func searchSorted(s []float64, v float64) int {
+	if len(s) > 32 {
+		return sort.SearchFloat64s(s, v)
+	}
+	k := 0
+	for k < len(s) && !(s[k] >= v) {
+		k++
+	}
+	return k
+}
+
 func insertSorted(s []float64, v float64) []float64 {
-	k := sort.SearchFloat64s(s, v)
+	k := searchSorted(s, v)
 	s = append(s, 0)
 	copy(s[k+1:], s[k:])
 	s[k] = v
@@ -174,7 +187,7 @@ func insertSorted(s []float64, v float64) []float64 {
 }
 
 func removeSorted(s []float64, v float64) []float64 {
-	k := sort.SearchFloat64s(s, v)
+	k := searchSorted(s, v)
 	if k < len(s) && s[k] == v {
 		copy(s[k:], s[k+1:])
 		s = s[:len(s)-1]

@@ -144,3 +144,20 @@ func FuzzMedianMAD(f *testing.F) {
 		}
 	})
 }
+
+// TestSearchSortedAgreesWithSort: the linear search used for short Hampel
+// windows must return what sort.SearchFloat64s returns (also for values
+// equal to members, outside the range, NaN, and long windows).
+func TestSearchSortedAgreesWithSort(t *testing.T) {
+	for _, n := range []int{0, 1, 2, 3, 7, 32, 33, 100} {
+		s := make([]float64, n)
+		for i := range s {
+			s[i] = float64(i/2) * 0.5 // with repeats
+		}
+		for _, v := range []float64{-1, 0, 0.25, 0.5, 3, float64(n), math.NaN(), math.Inf(1), math.Inf(-1)} {
+			if got, want := searchSorted(s, v), sort.SearchFloat64s(s, v); got != want {
+				t.Errorf("n=%d v=%v: got %d want %d", n, v, got, want)
+			}
+		}
+	}
+}

@@ -16,6 +16,7 @@ import (
 	"sort"
 	"strings"
 	"time"
+	"unsafe"
 
 	"github.com/exergywatch/exergywatch/config/units"
 	"github.com/exergywatch/exergywatch/ingest"
@@ -193,6 +194,44 @@ type Mapper struct {
 	Signals []*Signal
 	Groups  []*Group
 	byTag   map[string]*Signal
+	cache   *[tagCacheSize]tagCacheSlot
+}
+
+// The lookup cache in front of byTag. Decoders intern tag names, so the
+// samples of one tag carry the same string (same data pointer) message
+// after message; a slot remembers the signal of one such string. A hit
+// needs the same data pointer and length: the slot's pointer keeps the
+// string's memory alive, so the address cannot be reused for other text,
+// and Go strings are immutable, so same pointer and length means same
+// tag. Any other string falls back to the map and takes the slot.
+const tagCacheBits = 12
+
+const tagCacheSize = 1 << tagCacheBits
+
+type tagCacheSlot struct {
+	p   *byte
+	n   int
+	sig *Signal // nil: the tag is not mapped
+}
+
+// lookup is byTag[tag] through the cache.
+func (m *Mapper) lookup(tag string) (*Signal, bool) {
+	if tag == "" {
+		sig, ok := m.byTag[tag]
+		return sig, ok
+	}
+	if m.cache == nil {
+		m.cache = new([tagCacheSize]tagCacheSlot)
+	}
+	p := unsafe.StringData(tag)
+	// Fibonacci hashing of the address (Knuth, TAOCP vol. 3, 6.4).
+	slot := &m.cache[(uint64(uintptr(unsafe.Pointer(p)))*0x9E3779B97F4A7C15)>>(64-tagCacheBits)]
+	if slot.p == p && slot.n == len(tag) {
+		return slot.sig, slot.sig != nil
+	}
+	sig, ok := m.byTag[tag]
+	*slot = tagCacheSlot{p: p, n: len(tag), sig: sig}
+	return sig, ok
 }
 
 // Compile checks cfg and builds a Mapper. All problems are reported
@@ -434,7 +473,7 @@ func (m *Mapper) Signal(tag string) (*Signal, bool) {
 // (ReasonUnmapped, ReasonNoBarometer). Barometer tags update the state used
 // for gauge pressures.
 func (m *Mapper) Map(s *ingest.Sample) (*Signal, float64, ingest.Reason) {
-	sig, ok := m.byTag[s.Tag]
+	sig, ok := m.lookup(s.Tag)
 	if !ok {
 		return nil, 0, ingest.ReasonUnmapped
 	}

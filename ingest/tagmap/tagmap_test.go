@@ -2,6 +2,7 @@ package tagmap
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -144,5 +145,47 @@ redundancy_groups:
 	tt, _ := m.Signal("U1.TT101A")
 	if tt.Params.Min != 250 || tt.Params.Max != 900 || len(m.Groups) != 1 || m.Groups[0].Divergence != 3 {
 		t.Fatalf("T params %+v groups %+v", tt.Params, m.Groups)
+	}
+}
+
+// TestLookupCacheAgreesWithMap: the pointer-keyed cache in front of the
+// tag map must give what the map gives, for interned strings (same data
+// pointer every time), fresh copies of the same text, unmapped tags, and
+// enough distinct strings to make slots collide and be taken over.
+func TestLookupCacheAgreesWithMap(t *testing.T) {
+	var cfg Config
+	for i := 0; i < 3000; i++ {
+		cfg.Tags = append(cfg.Tags, TagConfig{Tag: fmt.Sprintf("u%d.t%d", i/10, i%10), Quantity: "T"})
+	}
+	m, err := Compile(cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	interned := map[string]string{}
+	for pass := 0; pass < 3; pass++ {
+		for i := 0; i < 9000; i++ { // every third is not mapped
+			text := fmt.Sprintf("u%d.t%d", i/10, i%10)
+			if i%3 == 2 {
+				text = "x" + text
+			}
+			tag := text
+			if pass > 0 && i%2 == 0 {
+				if s, ok := interned[text]; ok {
+					tag = s // same data pointer as before
+				}
+			}
+			interned[text] = tag
+			sig, _, r := m.Map(&ingest.Sample{Tag: tag, Value: 300})
+			want, ok := m.byTag[text]
+			switch {
+			case !ok && r != ingest.ReasonUnmapped:
+				t.Fatalf("pass %d: %q is not mapped, got %v", pass, text, r)
+			case ok && (r != ingest.ReasonNone || sig != want):
+				t.Fatalf("pass %d: %q mapped to %v (%v), want %v", pass, text, sig, r, want.Tag)
+			}
+		}
+	}
+	if _, _, r := m.Map(&ingest.Sample{Tag: "", Value: 1}); r != ingest.ReasonUnmapped {
+		t.Fatalf("empty tag: %v", r)
 	}
 }
