@@ -420,7 +420,11 @@ func (d *Decoder) sample(data []byte, f *fields, def *time.Time, recv time.Time,
 	smp := ingest.Sample{Tag: tag, ReceiveTime: recv}
 	switch f.value.k {
 	case kNumber:
-		v, err := strconv.ParseFloat(string(data[f.value.start:f.value.end]), 64)
+		v, ok := fastDecimal(data[f.value.start:f.value.end])
+		var err error
+		if !ok {
+			v, err = strconv.ParseFloat(string(data[f.value.start:f.value.end]), 64)
+		}
 		if err != nil {
 			return dst, append(errs, Error{Tag: tag, Err: fmt.Errorf("%w: %s", ErrBadValue, truncate(data[f.value.start:f.value.end]))})
 		}

@@ -310,6 +310,11 @@ func parseLPValue(b []byte) (float64, error) {
 	if len(b) == 0 {
 		return 0, fmt.Errorf("%w: empty value", ErrBadValue)
 	}
+	if c := b[0]; c == '-' || (c >= '0' && c <= '9') {
+		if v, ok := fastDecimal(b); ok {
+			return v, nil
+		}
+	}
 	switch string(b) {
 	case "t", "T", "true", "True", "TRUE":
 		return 1, nil

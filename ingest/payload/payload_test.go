@@ -249,3 +249,37 @@ func FuzzParseInt64(f *testing.F) {
 		}
 	})
 }
+
+// FuzzFastDecimal: where the plain-decimal fast path answers, it must give
+// exactly (bit for bit, sign of zero included) what strconv.ParseFloat
+// gives; and it must answer for the everyday forms.
+func FuzzFastDecimal(f *testing.F) {
+	for _, s := range []string{"0", "-0", "12.5", "-3.25", "450.45", "0.1", "9007199254740992", "9007199254740993",
+		"900719925474099.9", "1.0000000000000000000001", "0.0000000000000000000001", "1e3", "+1", ".5", "5.", "1_0", "", "-", "007.5",
+		"123456789012345678901234567890", "2.2250738585072014", "-0.000"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		got, ok := fastDecimal([]byte(s))
+		if !ok {
+			return
+		}
+		want, err := strconv.ParseFloat(s, 64)
+		if err != nil || math.Float64bits(got) != math.Float64bits(want) {
+			t.Fatalf("%q: fast %v (%x), strconv %v (%x) %v", s, got, math.Float64bits(got), want, math.Float64bits(want), err)
+		}
+	})
+}
+
+func TestFastDecimalAnswersEverydayForms(t *testing.T) {
+	for _, s := range []string{"0", "-0", "12.5", "-3.25", "450.45", "3000", "0.001", "101325", "-273.15", "9007199254740992"} {
+		if _, ok := fastDecimal([]byte(s)); !ok {
+			t.Errorf("%q: fast path refused", s)
+		}
+	}
+	for _, s := range []string{"1e3", "+1", ".5", "5.", "", "-", "NaN", "9007199254740993", "1.00000000000000000000001", "1_0"} {
+		if _, ok := fastDecimal([]byte(s)); ok {
+			t.Errorf("%q: fast path answered", s)
+		}
+	}
+}
