@@ -32,7 +32,8 @@ type batcher struct {
 func newBatcher(s *Source, put func([]ingest.Sample)) *batcher {
 	dec := payload.NewDecoder(s.format)
 	dec.Precision = s.cfg.LinePrecision
-	b := &batcher{s: s, dec: dec, max: s.cfg.BatchSamples, put: put, buf: make([]ingest.Sample, 0, s.cfg.BatchSamples)}
+	b := &batcher{s: s, dec: dec, max: s.cfg.BatchSamples, put: put}
+	b.buf = s.q.Buffer(b.bufCap())
 	b.now.Store(s.clock.Now().UnixNano())
 	return b
 }
@@ -57,9 +58,15 @@ func (b *batcher) flushLocked() {
 		return
 	}
 	batch := b.buf
-	b.buf = b.s.q.Buffer(b.max)
+	b.buf = b.s.q.Buffer(b.bufCap())
 	b.put(batch)
 }
+
+// bufCap is the capacity of a batch buffer: the batch is handed on once it
+// holds max samples, so twice that leaves room for the last message
+// without growing (and copying) the batch, unless that message alone
+// holds more than max samples.
+func (b *batcher) bufCap() int { return 2 * b.max }
 
 // run flushes every linger until ctx ends, then once more.
 func (b *batcher) run(ctx context.Context, linger time.Duration) {
