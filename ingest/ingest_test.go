@@ -185,3 +185,26 @@ func TestMetricsRegistry(t *testing.T) {
 		t.Fatalf("values %v", vals)
 	}
 }
+
+type countCompleter struct{ n int }
+
+func (c *countCompleter) Complete() { c.n++ }
+
+// TestAckInitCompleter: a handle embedded with Init calls its Completer
+// once, after the last of its references, whether released one by one or
+// in runs.
+func TestAckInitCompleter(t *testing.T) {
+	var c countCompleter
+	var a ingest.Ack
+	a.Init(4, &c)
+	a.Done()
+	a.DoneN(2)
+	if c.n != 0 || a.Pending() != 1 {
+		t.Fatalf("completed early: %d, pending %d", c.n, a.Pending())
+	}
+	a.Done()
+	a.Done() // beyond the count: ignored
+	if c.n != 1 {
+		t.Fatalf("completed %d times, want 1", c.n)
+	}
+}

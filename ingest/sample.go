@@ -97,6 +97,27 @@ func (s *Sample) Time() time.Time {
 type Ack struct {
 	n  atomic.Int32
 	fn func()
+	c  Completer
+}
+
+// Completer is told when the last reference of an acknowledgement handle
+// set up with Init is released.
+type Completer interface{ Complete() }
+
+// Init sets up a handle embedded in a larger value (so that it needs no
+// allocation of its own): after n calls of Done, c.Complete runs once.
+// n must be positive, and Init must happen before the handle is shared.
+func (a *Ack) Init(n int, c Completer) {
+	a.fn, a.c = nil, c
+	a.n.Store(int32(n))
+}
+
+func (a *Ack) fire() {
+	if a.fn != nil {
+		a.fn()
+	} else if a.c != nil {
+		a.c.Complete()
+	}
 }
 
 // NewAck returns a handle that runs fn after n calls of Done. With n <= 0
@@ -118,8 +139,8 @@ func (a *Ack) Done() {
 	if a == nil {
 		return
 	}
-	if a.n.Add(-1) == 0 && a.fn != nil {
-		a.fn()
+	if a.n.Add(-1) == 0 {
+		a.fire()
 	}
 }
 
@@ -131,8 +152,8 @@ func (a *Ack) DoneN(n int) {
 		return
 	}
 	left := a.n.Add(-int32(n))
-	if left <= 0 && left+int32(n) > 0 && a.fn != nil {
-		a.fn()
+	if left <= 0 && left+int32(n) > 0 {
+		a.fire()
 	}
 }
 

@@ -3,6 +3,8 @@ package natsrc
 import (
 	"container/heap"
 	"sync"
+
+	"github.com/exergywatch/exergywatch/ingest"
 )
 
 // ackTracker turns per-message completions into cumulative acknowledgements
@@ -31,16 +33,26 @@ type ackTracker struct {
 	covered     int    // messages completed since the last flush
 }
 
+// acker acknowledges one message (jetstream.Msg does).
+type acker interface{ Ack() error }
+
+// tracked is one delivered message. It also holds the acknowledgement
+// handle its samples share (one allocation per message for all of it).
 type tracked struct {
 	sseq  uint64
 	done  bool
-	ack   func() error
+	msg   acker
 	index int // heap index, -1 when not in the heap
+	t     *ackTracker
+	ack   ingest.Ack
 }
 
-// add registers a delivered message; the returned func marks it complete.
-func (t *ackTracker) add(sseq uint64, ack func() error) func() {
-	m := &tracked{sseq: sseq, ack: ack, index: -1}
+// Complete marks the message complete (ingest.Completer).
+func (m *tracked) Complete() { m.t.complete(m) }
+
+// add registers a delivered message; its Complete marks it complete.
+func (t *ackTracker) add(sseq uint64, msg acker) *tracked {
+	m := &tracked{sseq: sseq, msg: msg, index: -1, t: t}
 	t.mu.Lock()
 	if sseq > t.maxSeen {
 		t.maxSeen = sseq
@@ -49,7 +61,7 @@ func (t *ackTracker) add(sseq uint64, ack func() error) func() {
 		heap.Push(&t.redelivered, m)
 	}
 	t.mu.Unlock()
-	return func() { t.complete(m) }
+	return m
 }
 
 func (t *ackTracker) complete(m *tracked) {
@@ -90,7 +102,7 @@ func (t *ackTracker) flush() (int, error) {
 	t.covered = 0
 	t.sent = c.sseq
 	t.mu.Unlock()
-	return n, c.ack()
+	return n, c.msg.Ack()
 }
 
 type seqHeap []*tracked

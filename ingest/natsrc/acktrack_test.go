@@ -9,7 +9,7 @@ func TestAckTrackerNeverPassesInFlight(t *testing.T) {
 	var acked []uint64
 	tr := &ackTracker{}
 	add := func(seq uint64) func() {
-		return tr.add(seq, func() error { acked = append(acked, seq); return nil })
+		return tr.add(seq, ackFunc(func() error { acked = append(acked, seq); return nil })).Complete
 	}
 	flush := func(wantSeq uint64, wantN int) {
 		t.Helper()
@@ -41,6 +41,10 @@ func TestAckTrackerNeverPassesInFlight(t *testing.T) {
 	d4()
 	flush(5, 3)
 }
+
+type ackFunc func() error
+
+func (f ackFunc) Ack() error { return f() }
 
 func TestStreamSeq(t *testing.T) {
 	// Layouts from nats.go v1.55.0 internal/parser/parse.go.

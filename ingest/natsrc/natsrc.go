@@ -488,7 +488,6 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 		}
 	}()
 	cc, err := cons.Consume(func(m jetstream.Msg) {
-		var done func()
 		if s.cfg.AckPolicy == "all" {
 			seq, ok := streamSeq(m.Reply())
 			if !ok {
@@ -499,26 +498,34 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 				}
 				seq = md.Sequence.Stream
 			}
-			done = tracker.add(seq, m.Ack)
-		} else {
-			done = func() {
-				if err := m.Ack(); err != nil {
-					s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+			tm := tracker.add(seq, m)
+			bt.add(m.Subject(), m.Data(), func(added []ingest.Sample) {
+				if len(added) == 0 {
+					// Nothing usable; a redelivery would fail the same way.
+					tm.Complete()
 					return
 				}
-				if s.metrics != nil {
-					s.metrics.Acked.Add(1)
+				tm.ack.Init(len(added), tm)
+				for i := range added {
+					added[i].Ack = &tm.ack
 				}
+			})
+			return
+		}
+		// Explicit policy: each message acknowledged on completion.
+		done := func() {
+			if err := m.Ack(); err != nil {
+				s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+				return
+			}
+			if s.metrics != nil {
+				s.metrics.Acked.Add(1)
 			}
 		}
 		bt.add(m.Subject(), m.Data(), func(added []ingest.Sample) {
 			if len(added) == 0 {
 				// Nothing usable; a redelivery would fail the same way.
-				if s.cfg.AckPolicy == "all" {
-					done()
-				} else {
-					_ = m.Term()
-				}
+				_ = m.Term()
 				return
 			}
 			ack := ingest.NewAck(len(added), done)
