@@ -2,6 +2,7 @@ package payload
 
 import (
 	"bytes"
+	"encoding/binary"
 	"fmt"
 	"math"
 	"strconv"
@@ -243,6 +244,13 @@ func scanKey(line []byte, i int, stop *[256]bool) ([]byte, int) {
 	escaped := false
 	for i < len(line) {
 		c := line[i]
+		if !stop[c] && c != '\\' { // the common byte: part of the key
+			if escaped {
+				out = append(out, c)
+			}
+			i++
+			continue
+		}
 		if c == '\\' && i+1 < len(line) {
 			n := line[i+1]
 			if n == ',' || n == ' ' || n == '=' || n == '\\' {
@@ -287,6 +295,14 @@ func parseInt64(b []byte) (int64, bool) {
 		return 0, false
 	}
 	var u uint64
+	for len(b) >= 8 {
+		v, ok := eightDigits(b)
+		if !ok {
+			return 0, false
+		}
+		u = u*1e8 + v
+		b = b[8:]
+	}
 	for _, c := range b {
 		if c < '0' || c > '9' {
 			return 0, false
@@ -304,6 +320,19 @@ func parseInt64(b []byte) (int64, bool) {
 		return 0, false
 	}
 	return int64(u), true
+}
+
+// eightDigits reads 8 ASCII digits at once (SWAR: the byte check and the
+// three multiply-shift steps of simdjson's parse_eight_digits_unrolled,
+// Lemire and Langdale 2019); false if any byte is not a digit.
+func eightDigits(b []byte) (uint64, bool) {
+	v := binary.LittleEndian.Uint64(b)
+	if (v&0xF0F0F0F0F0F0F0F0)|(((v+0x0606060606060606)&0xF0F0F0F0F0F0F0F0)>>4) != 0x3333333333333333 {
+		return 0, false
+	}
+	v = (v & 0x0F0F0F0F0F0F0F0F) * 2561 >> 8
+	v = (v & 0x00FF00FF00FF00FF) * 6553601 >> 16
+	return (v & 0x0000FFFF0000FFFF) * 42949672960001 >> 32, true
 }
 
 func parseLPValue(b []byte) (float64, error) {

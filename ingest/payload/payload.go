@@ -44,8 +44,10 @@ package payload
 
 import (
 	"bytes"
+	"encoding/binary"
 	"errors"
 	"fmt"
+	"math/bits"
 	"time"
 
 	"github.com/exergywatch/exergywatch/ingest"
@@ -109,6 +111,7 @@ type Decoder struct {
 	// Precision of line-protocol timestamps; 0 means time.Nanosecond.
 	Precision time.Duration
 	intern    map[string]string
+	cache     *[1 << nameCacheBits]string
 	buf       []byte
 }
 
@@ -119,7 +122,51 @@ func NewDecoder(f Format) *Decoder {
 
 const maxIntern = 1 << 16
 
+// nameCacheBits sizes the cache in front of the intern table: a pair of
+// slots holds the last two names whose bytes hashed to it, checked by
+// comparing the bytes, so a hit skips the map lookup.
+const nameCacheBits = 12
+
+// nameHash mixes the length and up to 24 bytes of b (start, middle, end)
+// into a slot index; names that differ elsewhere only share a slot.
+func nameHash(b []byte) uint64 {
+	n := len(b)
+	var x uint64
+	switch {
+	case n >= 8:
+		x = binary.LittleEndian.Uint64(b) ^ bits.RotateLeft64(binary.LittleEndian.Uint64(b[n-8:]), 29)
+		if n > 16 {
+			x ^= bits.RotateLeft64(binary.LittleEndian.Uint64(b[n/2-4:]), 47)
+		}
+	case n >= 4:
+		x = uint64(binary.LittleEndian.Uint32(b)) | uint64(binary.LittleEndian.Uint32(b[n-4:]))<<32
+	default:
+		for _, c := range b {
+			x = x<<8 | uint64(c)
+		}
+	}
+	x ^= uint64(n) * 0x9E3779B97F4A7C15
+	return (x * 0xBF58476D1CE4E5B9) >> (64 - nameCacheBits)
+}
+
 func (d *Decoder) name(b []byte) string {
+	if d.cache == nil {
+		d.cache = new([1 << nameCacheBits]string)
+	}
+	h := nameHash(b)
+	s0, s1 := &d.cache[h], &d.cache[h^1] // two-way: a pair of slots
+	if *s0 == string(b) {
+		return *s0
+	}
+	if *s1 == string(b) {
+		return *s1
+	}
+	s := d.internName(b)
+	*s1, *s0 = *s0, s // newest first
+	return s
+}
+
+func (d *Decoder) internName(b []byte) string {
 	if s, ok := d.intern[string(b)]; ok {
 		return s
 	}

@@ -3,6 +3,7 @@ package payload
 import (
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"strconv"
 	"testing"
@@ -238,7 +239,8 @@ func FuzzJSONRoundTrip(f *testing.F) {
 }
 
 func FuzzParseInt64(f *testing.F) {
-	for _, s := range []string{"0", "-1", "+5", "9223372036854775807", "-9223372036854775808", "9223372036854775808", "1e3", "", "-", "0123"} {
+	for _, s := range []string{"0", "-1", "+5", "9223372036854775807", "-9223372036854775808", "9223372036854775808", "1e3", "", "-", "0123",
+		"1764583200123456789", "12345678", "1234567:", "1234/678", "12345678123456789/", "-0000000000000000001"} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {
@@ -280,6 +282,26 @@ func TestFastDecimalAnswersEverydayForms(t *testing.T) {
 	for _, s := range []string{"1e3", "+1", ".5", "5.", "", "-", "NaN", "9007199254740993", "1.00000000000000000000001", "1_0"} {
 		if _, ok := fastDecimal([]byte(s)); ok {
 			t.Errorf("%q: fast path answered", s)
+		}
+	}
+}
+
+// TestNameCacheKeepsNamesApart: the slot cache in front of the intern
+// table compares bytes, so names that share a slot (same length, same
+// start, middle and end) still decode to their own tag.
+func TestNameCacheKeepsNamesApart(t *testing.T) {
+	d := NewDecoder(LineProtocol)
+	var names []string
+	for i := 0; i < 3000; i++ {
+		names = append(names, fmt.Sprintf("plant.unit.%04d.section.turbine.PT101", i)) // differ only past the first 8 bytes
+		names = append(names, fmt.Sprintf("t%d", i))
+	}
+	for pass := 0; pass < 2; pass++ {
+		for _, n := range names {
+			got, errs := d.Decode([]byte(n+" value=1 1764583200000000000"), time.Time{}, nil, nil)
+			if len(errs) != 0 || len(got) != 1 || got[0].Tag != n {
+				t.Fatalf("pass %d: %q decoded to %+v %v", pass, n, got, errs)
+			}
 		}
 	}
 }
