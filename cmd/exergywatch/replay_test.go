@@ -607,7 +607,7 @@ func BenchmarkReplay(b *testing.B) {
 		d    time.Duration
 	}{{"day", 24 * time.Hour}, {"week", 7 * 24 * time.Hour}, {"year", 365 * 24 * time.Hour}} {
 		var sp *synthPlant
-		for _, sink := range []string{"nosink", "store", "store-bulk"} {
+		for _, sink := range []string{"nosink", "store"} {
 			b.Run(span.name+"/"+sink, func(b *testing.B) {
 				if sp == nil {
 					sp = newSynthPlant(b, yearOptions(start, 4), time.Minute, span.d, time.Hour)
@@ -621,11 +621,8 @@ func BenchmarkReplay(b *testing.B) {
 					if err != nil {
 						b.Fatal(err)
 					}
-					switch sink {
-					case "nosink":
+					if sink == "nosink" {
 						cfg.Sinks = nil
-					case "store-bulk":
-						bulkLoad(cfg)
 					}
 					p, err := buildPipeline(cfg, pipelineOptions{})
 					if err != nil {
