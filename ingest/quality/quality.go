@@ -57,8 +57,10 @@ func New(p Params) *Checker {
 	}
 	c := &Checker{P: p}
 	if p.SpikeWindow >= 3 {
-		c.hist = make([]float64, p.SpikeWindow)
-		c.sorted = make([]float64, 0, p.SpikeWindow)
+		// One allocation for both, next to each other in memory.
+		buf := make([]float64, 2*p.SpikeWindow)
+		c.hist = buf[:p.SpikeWindow:p.SpikeWindow]
+		c.sorted = buf[p.SpikeWindow : p.SpikeWindow : 2*p.SpikeWindow]
 	}
 	return c
 }
@@ -110,13 +112,15 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 	// genuine step becomes the new median after half a window.
 	if c.hist != nil && !rs.Has(ingest.ReasonOutOfRange) {
 		if c.histN == len(c.hist) {
-			c.sorted = removeSorted(c.sorted, c.hist[c.histPos])
+			c.sorted = replaceSorted(c.sorted, c.hist[c.histPos], v)
 		} else {
 			c.histN++
+			c.sorted = insertSorted(c.sorted, v)
 		}
-		c.sorted = insertSorted(c.sorted, v)
 		c.hist[c.histPos] = v
-		c.histPos = (c.histPos + 1) % len(c.hist)
+		if c.histPos++; c.histPos == len(c.hist) {
+			c.histPos = 0
+		}
 	}
 	if !inOrder {
 		return use, rs
@@ -182,6 +186,32 @@ func insertSorted(s []float64, v float64) []float64 {
 	k := searchSorted(s, v)
 	s = append(s, 0)
 	copy(s[k+1:], s[k:])
+	s[k] = v
+	return s
+}
+
+// replaceSorted is removeSorted(s, old) then insertSorted(.., v) in one
+// pass: the values between the old and the new place move by one.
+func replaceSorted(s []float64, old, v float64) []float64 {
+	if old != old || v != v { // NaN: the general path
+		return insertSorted(removeSorted(s, old), v)
+	}
+	k := searchSorted(s, old)
+	if k == len(s) || s[k] != old {
+		return insertSorted(s, v) // old not held: as removeSorted would
+	}
+	switch {
+	case v > old:
+		for k+1 < len(s) && s[k+1] < v {
+			s[k] = s[k+1]
+			k++
+		}
+	case v < old:
+		for k > 0 && s[k-1] > v {
+			s[k] = s[k-1]
+			k--
+		}
+	}
 	s[k] = v
 	return s
 }

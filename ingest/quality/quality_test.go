@@ -161,3 +161,30 @@ func TestSearchSortedAgreesWithSort(t *testing.T) {
 		}
 	}
 }
+
+// TestReplaceSortedAgreesWithRemoveInsert: the one-pass replacement must
+// leave the same sorted window as removing the old value and inserting
+// the new one (repeats, ends, equal values, old not held, NaN).
+func TestReplaceSortedAgreesWithRemoveInsert(t *testing.T) {
+	vals := []float64{-2, 0, 0, 1, 1.5, 3, 3, 3, 7, math.NaN()}
+	for n := 1; n <= 7; n++ {
+		for start := 0; start+n <= len(vals)-1; start++ {
+			win := append([]float64(nil), vals[start:start+n]...)
+			sort.Float64s(win)
+			for _, old := range append(append([]float64(nil), win...), 99) {
+				for _, v := range vals {
+					want := insertSorted(removeSorted(append([]float64(nil), win...), old), v)
+					got := replaceSorted(append([]float64(nil), win...), old, v)
+					if len(got) != len(want) {
+						t.Fatalf("%v - %v + %v: got %v want %v", win, old, v, got, want)
+					}
+					for i := range got {
+						if got[i] != want[i] && !(math.IsNaN(got[i]) && math.IsNaN(want[i])) {
+							t.Fatalf("%v - %v + %v: got %v want %v", win, old, v, got, want)
+						}
+					}
+				}
+			}
+		}
+	}
+}
