@@ -717,10 +717,17 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 		workers = runtime.GOMAXPROCS(0)
 	}
 	workers = max(1, min(workers, len(p.order)))
+	// Machines go round-robin to the workers first; after rebalanceAfter
+	// ticks the measured cost of each machine (a gas compressor on
+	// GERG-2008 costs ten times a pump on IF97) reassigns them, largest
+	// first, to the least loaded worker.
 	route := map[string]int{}
+	index := map[string]int{}
 	for i, id := range p.order {
 		route[id] = i % workers
+		index[id] = i
 	}
+	cost := make([]atomic.Int64, len(p.order)) // ns spent per machine
 	// Sink queue limits: records handed to the workers but not yet written
 	// (inflight) plus the records in a sink's queue stay under three
 	// quarters of that queue's bound (Multi drops what does not fit; a
@@ -748,7 +755,12 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 			defer wg.Done()
 			for batch := range w.in {
 				for _, s := range batch {
+					t0 := time.Now()
+					k, known := index[s.Machine]
 					p.replayEvaluate(wctx, s, w)
+					if known {
+						cost[k].Add(int64(time.Since(t0)))
+					}
 					inflight.Add(-1)
 				}
 			}
@@ -840,6 +852,20 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 		}
 		res.Ticks++
 		lastTick.Store(t.UnixNano())
+		if res.Ticks == rebalanceAfter && workers > 1 {
+			// Moving a machine between workers is safe only when none of
+			// its snapshots is still queued: wait for the workers to drain.
+			for inflight.Load() > 0 {
+				time.Sleep(50 * time.Microsecond)
+			}
+			c := make([]int64, len(cost))
+			for i := range cost {
+				c[i] = cost[i].Load()
+			}
+			for i, w := range assignLPT(c, workers) {
+				route[p.order[i]] = w
+			}
+		}
 	}
 	var runErr error
 	n := 0
@@ -907,6 +933,33 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 	p.saveState()
 	res.Wall = time.Since(start)
 	return res, runErr
+}
+
+// rebalanceAfter is the tick after which machines are reassigned to the
+// evaluation workers by measured cost.
+const rebalanceAfter = 64
+
+// assignLPT assigns jobs of the given costs to workers, largest first, each
+// to the currently least loaded worker (longest processing time first).
+func assignLPT(costs []int64, workers int) []int {
+	order := make([]int, len(costs))
+	for i := range order {
+		order[i] = i
+	}
+	sort.SliceStable(order, func(a, b int) bool { return costs[order[a]] > costs[order[b]] })
+	load := make([]int64, workers)
+	out := make([]int, len(costs))
+	for _, j := range order {
+		w := 0
+		for k := 1; k < workers; k++ {
+			if load[k] < load[w] {
+				w = k
+			}
+		}
+		out[j] = w
+		load[w] += costs[j]
+	}
+	return out
 }
 
 // replayEvaluate is evaluateBatch for one snapshot without the pipeline-wide

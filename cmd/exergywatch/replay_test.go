@@ -11,6 +11,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
 	"sync"
@@ -830,6 +831,32 @@ func TestReplayWritesInfluxSink(t *testing.T) {
 					t.Errorf("%s %v: isentropic efficiency %v (present %v) in the database, %v in the store", id, r.Time, v, ok, f.Value)
 				}
 			}
+		}
+	}
+}
+
+func TestAssignLPT(t *testing.T) {
+	for _, tc := range []struct {
+		costs   []int64
+		workers int
+		want    []int64 // resulting loads per worker, sorted
+	}{
+		// Round-robin would give loads 10+1+1 = 12 and 1+1 = 2.
+		{[]int64{10, 1, 1, 1, 1}, 2, []int64{4, 10}},
+		// Four gas compressors and four pumps (about 340 and 24 us per
+		// evaluation, BenchmarkEvaluateMachine): 2 + 2 each side.
+		{[]int64{340, 340, 340, 340, 24, 24, 24, 24}, 2, []int64{728, 728}},
+		{[]int64{5, 4, 3, 3, 3}, 2, []int64{8, 10}}, // LPT is a heuristic: the optimum 9/9 is missed (Graham 1969, from memory)
+		{[]int64{7}, 3, []int64{0, 0, 7}},
+	} {
+		got := assignLPT(tc.costs, tc.workers)
+		load := make([]int64, tc.workers)
+		for j, w := range got {
+			load[w] += tc.costs[j]
+		}
+		slices.Sort(load)
+		if !slices.Equal(load, tc.want) {
+			t.Errorf("assignLPT(%v, %d) loads %v, want %v", tc.costs, tc.workers, load, tc.want)
 		}
 	}
 }
