@@ -23,8 +23,12 @@ type lpField struct {
 }
 
 func (d *Decoder) decodeLines(data []byte, recv time.Time, dst []ingest.Sample, errs []Error) ([]ingest.Sample, []Error) {
-	var fields []lpField
-	var nameBuf []byte
+	// Scratch kept in the decoder from message to message.
+	fields, nameBuf := d.fields[:0], d.nameBuf[:0]
+	defer func() {
+		clear(fields[:cap(fields)]) // keeps no reference to this payload
+		d.fields, d.nameBuf = fields[:0], nameBuf[:0]
+	}()
 	for len(data) > 0 {
 		var line []byte
 		if i := bytes.IndexByte(data, '\n'); i >= 0 {

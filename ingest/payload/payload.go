@@ -113,6 +113,8 @@ type Decoder struct {
 	intern    map[string]string
 	cache     *[1 << nameCacheBits]string
 	buf       []byte
+	fields    []lpField // line-protocol scratch
+	nameBuf   []byte
 }
 
 // NewDecoder returns a decoder for format f.
