@@ -1054,6 +1054,27 @@ func cmdReplay(args []string, stdout, stderr io.Writer) int {
 	state := fs.String("state", "", "state file for the evaluators (default: a temporary file, so a live daemon's state is never touched)")
 	every := fs.Duration("progress-every", 10*time.Second, "interval of progress lines when stderr is not a terminal (0: none)")
 	level := fs.String("log-level", "warn", "log level on stderr")
+	fs.Usage = func() {
+		fmt.Fprint(stderr, `usage: exergywatch replay -c FILE [flags] [--input] FILE...
+
+Runs recorded tag history through the configured pipeline (tag map,
+alignment, machine evaluators, alerts, sinks) as fast as the machine allows,
+with a clock that follows the data: a tick every evaluation interval across
+the data span. Prints a summary on stdout; progress on stderr.
+
+Inputs (several files are merged by time; per-tag files are fine):
+  CSV            header row naming tag,time,value[,quality] (any order);
+                 time RFC 3339 or Unix milliseconds; quality good, uncertain
+                 or bad (empty: good); value in the tag's configured unit.
+  line protocol  <measurement>[,tag=<name>] value=<v>[,quality="good"] <time>
+                 tag name = the "tag" tag, else the measurement; a field other
+                 than "value" gives "<name>.<field>"; the time is required.
+Rows that cannot be read are counted with their reason and line, never fatal.
+
+flags:
+`)
+		fs.PrintDefaults()
+	}
 	if err := fs.Parse(args); err != nil {
 		return 2
 	}

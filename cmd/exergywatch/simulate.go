@@ -85,7 +85,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 	prefix := fs.String("prefix", "quillmoor.tags", "subject prefix; each machine publishes on <prefix>.<machine>")
 	scenario := fs.String("scenario", "demo", "demo (fouling, stuck sensor, load change, spikes) or steady (full load, no faults)")
 	seed := fs.Int64("seed", 7, "random seed of the measurement noise")
-	printCfg := fs.Bool("print-config", false, "print a daemon configuration that consumes this simulator (for `exergywatch run`) and exit")
+	printCfg := fs.Bool("print-config", false, "print a daemon configuration that consumes this simulator (for 'exergywatch run -c FILE') and exit")
 	interval := fs.Duration("interval", 0, "with --print-config: evaluation interval and window (default 2 x --rate)")
 	out := fs.String("out", "", "write the readings to this file instead of publishing: CSV (tag,time,value,quality), or line protocol when the name ends in .lp; simulated time runs from --start as fast as possible")
 	startS := fs.String("start", "", "with --out: simulated start time (RFC 3339; default now)")
