@@ -139,7 +139,7 @@ type point struct {
 
 type track struct {
 	sig *tagmap.Signal
-	chk *quality.Checker
+	chk quality.Checker // by value: one pointer less to follow per sample
 	pts []point
 }
 
@@ -186,7 +186,7 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 		return mc
 	}
 	for _, s := range m.Signals {
-		e.tracks = append(e.tracks, track{sig: s, chk: quality.New(s.Params)})
+		e.tracks = append(e.tracks, track{sig: s, chk: *quality.New(s.Params)})
 		if s.Machine != "" && s.Group < 0 {
 			mc := get(s.Machine)
 			mc.tracks = append(mc.tracks, s.Index)
