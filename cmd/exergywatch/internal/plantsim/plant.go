@@ -12,8 +12,10 @@ package plantsim
 
 import (
 	"fmt"
+	"maps"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"time"
 
 	"github.com/exergywatch/exergywatch/thermo"
@@ -234,7 +236,10 @@ func (p *Plant) Step(now time.Time) ([]Reading, error) {
 		if err != nil {
 			return nil, fmt.Errorf("plantsim: machine %s at %v: %w", m.id, e, err)
 		}
-		for key, v := range vals {
+		// Sorted keys: the noise stream must land on the same tags every
+		// run for a given seed.
+		for _, key := range slices.Sorted(maps.Keys(vals)) {
+			v := vals[key]
 			t, ok := m.tags[key]
 			if !ok {
 				continue

@@ -115,3 +115,32 @@ func TestLoadProfileAndFaults(t *testing.T) {
 		t.Errorf("%d tags, want 34", len(p.Tags()))
 	}
 }
+
+// The same seed gives the same readings, value for value.
+func TestSeedReproducible(t *testing.T) {
+	start := time.Date(2026, 5, 4, 8, 0, 0, 0, time.UTC)
+	run := func() []Reading {
+		p, err := New(DemoOptions(start), fluids.New)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var out []Reading
+		for i := 1; i <= 5; i++ {
+			rs, err := p.Step(start.Add(time.Duration(i) * time.Second))
+			if err != nil {
+				t.Fatal(err)
+			}
+			out = append(out, rs...)
+		}
+		return out
+	}
+	a, b := run(), run()
+	if len(a) != len(b) {
+		t.Fatalf("%d vs %d readings", len(a), len(b))
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			t.Fatalf("reading %d differs: %+v vs %+v", i, a[i], b[i])
+		}
+	}
+}
