@@ -2,7 +2,7 @@ package if97
 
 // Provenance of the coefficient tables in this file: the values (I_i, J_i,
 // n_i) were extracted mechanically from the tables of the python3-iapws
-// 1.5.2 source (Debian package 1.5.3-1), itself a transcription of the IAPWS
+// 1.5.2 source (Debian package 1.5.3-1), which itself copies them from the IAPWS
 // releases named at each table, and were not retyped by hand. Equation
 // numbers follow the releases; table numbers, where given, are from memory
 // of the release layout. Each table is verified against the release's own
