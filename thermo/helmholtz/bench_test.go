@@ -63,6 +63,11 @@ func BenchmarkPTAir(b *testing.B)           { benchFlash(b, "air-helmholtz", the
 func BenchmarkPTWaterLiquid(b *testing.B)   { benchFlash(b, "water-iapws95", thermo.PT, 1e6, 350) }
 func BenchmarkPTWaterSteam(b *testing.B)    { benchFlash(b, "water-iapws95", thermo.PT, 1e6, 600) }
 func BenchmarkPTCO2(b *testing.B)           { benchFlash(b, "co2", thermo.PT, 10e6, 320) }
+func BenchmarkPTCO2Gas(b *testing.B)        { benchFlash(b, "co2", thermo.PT, 3e6, 300) }
+func BenchmarkPTR134aVapour(b *testing.B)   { benchFlash(b, "r134a", thermo.PT, 0.5e6, 300) }
+func BenchmarkPTR134aLiquid(b *testing.B)   { benchFlash(b, "r134a", thermo.PT, 1.5e6, 300) }
+func BenchmarkPTNitrogen(b *testing.B)      { benchFlash(b, "nitrogen", thermo.PT, 1e6, 300) }
+func BenchmarkPTMethane(b *testing.B)       { benchFlash(b, "methane", thermo.PT, 5e6, 300) }
 
 // Isentropic end states.
 func BenchmarkPSAmmoniaCompressor(b *testing.B) {
@@ -77,7 +82,33 @@ func BenchmarkPSSteamTurbine(b *testing.B) {
 func BenchmarkPSSteamTurbineWet(b *testing.B) {
 	benchIsentropic(b, "water-iapws95", 10e6, 800, 0.05e6, thermo.PhaseTwoPhase)
 }
+func BenchmarkPSCO2Compressor(b *testing.B) {
+	benchIsentropic(b, "co2", 3e6, 300, 10e6, thermo.PhaseSupercritical)
+}
 func BenchmarkPHAmmoniaVapour(b *testing.B) { benchFlash(b, "ammonia", thermo.PH, 1.2e6, 1.7e6) }
+
+// (p,h) flashes at the (p,T) benchmark states.
+func BenchmarkPHAir(b *testing.B)        { benchPH(b, "air-helmholtz", 1e6, 450) }
+func BenchmarkPHWaterSteam(b *testing.B) { benchPH(b, "water-iapws95", 1e6, 600) }
+func BenchmarkPHWaterWet(b *testing.B)   { benchPH(b, "water-iapws95", 0.05e6, 0) }
+func BenchmarkPHCO2(b *testing.B)        { benchPH(b, "co2", 10e6, 320) }
+
+// benchPH times the (p,h) flash back to the state (p, T); T = 0 takes a wet
+// state of quality 0.9 at p.
+func benchPH(b *testing.B, name string, p, T float64) {
+	f := mustNew(b, name)
+	var s thermo.State
+	var err error
+	if T > 0 {
+		s, err = f.Flash(thermo.PT, p, T)
+	} else {
+		s, err = f.Flash(thermo.PX, p, 0.9)
+	}
+	if err != nil {
+		b.Fatal(err)
+	}
+	benchFlash(b, name, thermo.PH, p, s.H)
+}
 
 // (h,s) flash of a superheated ammonia state (each Newton step in p is a
 // (p,h) flash at a new pressure, so the per-pressure caches do not help).

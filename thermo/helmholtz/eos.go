@@ -43,6 +43,7 @@ type eos struct {
 	// gaussian terms
 	gN, gD, gT, gEta, gEps, gBeta, gGam []float64
 	gDi                                 []int
+	gSame                               []bool    // eta and eps equal to the previous term's: its delta factor is reused
 	g0                                  []float64 // exp(-eta eps^2): delta -> 0 limit of the delta factor
 
 	// association terms (Gao et al. 2023)
@@ -230,6 +231,7 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 	}
 	for k, d := range q.gDi {
 		q.maxD = max(q.maxD, d)
+		q.gSame = append(q.gSame, k > 0 && q.gEta[k] == q.gEta[k-1] && q.gEps[k] == q.gEps[k-1])
 		q.g0 = append(q.g0, math.Exp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
 	}
 	for k, d := range q.aDi {
@@ -413,11 +415,16 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 			}
 		}
 	}
+	var ge, g2 float64 // exp(-eta (delta-eps)^2) and 2 eta delta (delta-eps) of the previous term
 	for k := range q.gN {
 		eta, eps := q.gEta[k], q.gEps[k]
-		de := delta - eps
-		F := tp.gw[k] * dp[q.gDi[k]] * math.Exp(-eta*de*de)
-		gd := q.gD[k] - 2*eta*delta*de
+		if !q.gSame[k] {
+			de := delta - eps
+			ge = math.Exp(-eta * de * de)
+			g2 = 2 * eta * delta * de
+		}
+		F := tp.gw[k] * dp[q.gDi[k]] * ge
+		gd := q.gD[k] - g2
 		r.A += F
 		r.D += F * gd
 		r.DD += F * (gd*gd - q.gD[k] - 2*eta*delta*delta)
@@ -467,6 +474,7 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 	// IAPWS-95 terms; the first two Span-Wagner terms).
 	pa, pbeta, pA, pB := math.NaN(), math.NaN(), math.NaN(), math.NaN()
 	var qib1, qa1, qib, theta, Delta, lnDelta, dOver, Dd, Ddd float64
+	pC, pD, psi := math.NaN(), math.NaN(), 0.0 // psi shared by terms with equal C and D
 	for k, n := range q.nN {
 		a, b, beta, A, B, C, D := q.nA[k], q.nB[k], q.nBeta[k], q.nACap[k], q.nBCap[k], q.nC[k], q.nD[k]
 		ex := C*qq + D*tm*tm
@@ -475,7 +483,10 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 			// precision next to the O(1) remainder of alpha_r.
 			continue
 		}
-		psi := math.Exp(-ex)
+		if C != pC || D != pD {
+			pC, pD = C, D
+			psi = math.Exp(-ex)
+		}
 		ib := 1 / (2 * beta)
 		if a != pa || beta != pbeta || A != pA || B != pB {
 			pa, pbeta, pA, pB = a, beta, A, B
