@@ -56,10 +56,26 @@ type evalOut struct {
 // *StateError wrapping the thermo errors (thermo.ErrOutOfRange, ...). A
 // failed evaluation is never replaced by a guess; see BadRecord.
 func Evaluate(spec *Spec, in *Inputs) (*Result, error) {
+	res, _, err := evaluate(spec, in, false)
+	return res, err
+}
+
+// evaluate is Evaluate; full = true disables the nominal-state memo, so
+// every propagation step re-runs every flash (the reference the staged
+// propagation is tested against). flashes is the number of property-model
+// flashes run (the saturation checks not counted).
+func evaluate(spec *Spec, in *Inputs, full bool) (res *Result, flashes int, err error) {
+	res, err = evaluateR(spec, in, full, &flashes)
+	return res, flashes, err
+}
+
+func evaluateR(spec *Spec, in *Inputs, full bool, flashes *int) (*Result, error) {
 	c, err := resolve(spec)
 	if err != nil {
 		return nil, err
 	}
+	c.full = full
+	defer func() { *flashes = c.flashes }()
 	if in == nil {
 		return nil, fmt.Errorf("%w: nil inputs", ErrInput)
 	}
@@ -326,10 +342,20 @@ func (c *resolved) defined(x *[nIn]float64) [NumFigures]bool {
 }
 
 // memo is a state of the nominal evaluation. The propagation perturbs one
-// input at a time, so most of its flashes repeat a nominal one exactly (a
-// perturbed outlet temperature leaves the inlet and the isentropic outlet
-// unchanged); those are answered from the memo. Same inputs, same state: the
-// calculation is unchanged.
+// input at a time, so most of its flashes repeat a nominal one exactly;
+// those are answered from the memo. Same inputs, same state: the
+// calculation is unchanged. The evaluation is thus staged (inlet state ->
+// outlet state -> isentropic end state -> figures) and a perturbed input
+// recomputes only the stages it reaches:
+//
+//	p1, T1, h1, x1            inlet, isentropic end state (and an energy-balance outlet)
+//	p2                        outlet, isentropic end state
+//	T2, x2                    outlet
+//	flow, power, heat, eta    none (an energy-balance outlet only)
+//
+// TestStagedPropagationEqualsFullReevaluation counts the flashes against
+// this table and compares every figure, sensitivity and U95 with the
+// unstaged calculation.
 type memo struct {
 	ok   bool
 	pair thermo.Pair
@@ -339,9 +365,10 @@ type memo struct {
 
 func (c *resolved) flash(port int, pair thermo.Pair, a, b float64) (thermo.State, error) {
 	m := &c.memo[port]
-	if m.ok && m.pair == pair && m.a == a && m.b == b {
+	if m.ok && !c.full && m.pair == pair && m.a == a && m.b == b {
 		return m.s, nil
 	}
+	c.flashes++
 	s, err := c.Fluid.Flash(pair, a, b)
 	if err != nil {
 		return s, &StateError{Port: portNames[port], Pair: pair, A: a, B: b, Err: err}

@@ -311,6 +311,8 @@ type resolved struct {
 	// memo holds the nominal states while recording is false (see flash).
 	memo      [nPorts]memo
 	recording bool
+	full      bool // memo disabled (tests: the unstaged reference)
+	flashes   int  // property-model flashes run
 }
 
 func resolve(s *Spec) (*resolved, error) {
