@@ -232,11 +232,11 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 	for k, d := range q.gDi {
 		q.maxD = max(q.maxD, d)
 		q.gSame = append(q.gSame, k > 0 && q.gEta[k] == q.gEta[k-1] && q.gEps[k] == q.gEps[k-1])
-		q.g0 = append(q.g0, math.Exp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
+		q.g0 = append(q.g0, fexp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
 	}
 	for k, d := range q.aDi {
 		q.maxD = max(q.maxD, d)
-		q.a0 = append(q.a0, math.Exp(q.aEta[k]*q.aEps[k]*q.aEps[k]))
+		q.a0 = append(q.a0, fexp(q.aEta[k]*q.aEps[k]*q.aEps[k]))
 	}
 	if len(q.uniq) > maxUniqT {
 		return nil, fmt.Errorf("too many distinct tau exponents")
@@ -300,7 +300,7 @@ func powi(x float64, n int) float64 {
 func tauPow(tau float64, r *[3]float64, lnTau, t float64) float64 {
 	t8 := 8 * t
 	if t8 != math.Trunc(t8) || math.Abs(t8) > 512 {
-		return math.Exp(t * lnTau)
+		return fexp(t * lnTau)
 	}
 	n := int(t8)
 	neg := n < 0
@@ -345,7 +345,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 	for k, n := range q.gN {
 		t, b, g := q.gT[k], q.gBeta[k], q.gGam[k]
 		dt := tau - g
-		tp.gw[k] = n * math.Exp(t*lnTau-b*dt*dt)
+		tp.gw[k] = n * fexp(t*lnTau-b*dt*dt)
 		gt := t - 2*b*tau*dt
 		tp.gt[k] = gt
 		tp.gtt[k] = gt*gt - t - 2*b*tau*tau
@@ -357,7 +357,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		t, b, g, bb := q.aT[k], q.aBeta[k], q.aGam[k], q.aB[k]
 		dt := tau - g
 		u := b*dt*dt + bb
-		tp.aw[k] = n * math.Exp(t*lnTau+1/u)
+		tp.aw[k] = n * fexp(t*lnTau+1/u)
 		ht := t - 2*b*tau*dt/(u*u)
 		htp := -2 * b * ((2*tau-g)*u - 4*b*tau*dt*dt) / (u * u * u)
 		tp.at[k] = ht
@@ -388,7 +388,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		e, lx, llx := 1.0, 0.0, 0.0
 		if gr.l > 0 {
 			x := powi(delta, gr.l) // delta^l
-			e = math.Exp(-x)
+			e = fexp(-x)
 			fl := float64(gr.l)
 			lx, llx = fl*x, fl*fl*x
 		}
@@ -420,7 +420,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		eta, eps := q.gEta[k], q.gEps[k]
 		if !q.gSame[k] {
 			de := delta - eps
-			ge = math.Exp(-eta * de * de)
+			ge = fexp(-eta * de * de)
 			g2 = 2 * eta * delta * de
 		}
 		F := tp.gw[k] * dp[q.gDi[k]] * ge
@@ -437,7 +437,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 	for k := range q.aN {
 		eta, eps := q.aEta[k], q.aEps[k]
 		de := delta - eps
-		F := tp.aw[k] * dp[q.aDi[k]] * math.Exp(eta*de*de)
+		F := tp.aw[k] * dp[q.aDi[k]] * fexp(eta*de*de)
 		gd := q.aD[k] + 2*eta*delta*de
 		r.A += F
 		r.D += F * gd
@@ -485,15 +485,15 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 		}
 		if C != pC || D != pD {
 			pC, pD = C, D
-			psi = math.Exp(-ex)
+			psi = fexp(-ex)
 		}
 		ib := 1 / (2 * beta)
 		if a != pa || beta != pbeta || A != pA || B != pB {
 			pa, pbeta, pA, pB = a, beta, A, B
 			qib1, qa1, qib = 0, 0, 0 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
 			if qq > 0 {
-				qib1 = math.Exp((ib - 1) * lnq)
-				qa1 = math.Exp((a - 1) * lnq)
+				qib1 = fexp((ib - 1) * lnq)
+				qa1 = fexp((a - 1) * lnq)
 				qib = qib1 * qq
 			}
 			theta = -tm + A*qib
@@ -506,7 +506,7 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 		}
 		var Db, Db1, Db2 float64 // Delta^b, Delta^(b-1), Delta^(b-2)
 		if Delta > 0 {
-			Db = math.Exp(b * lnDelta)
+			Db = fexp(b * lnDelta)
 			Db1 = Db / Delta
 			Db2 = Db1 / Delta
 		}
@@ -553,7 +553,7 @@ func (q *eos) ideal(tau float64) ideal {
 		case 1:
 			v = n * tau
 		default:
-			v = n * math.Exp(t*lnTau)
+			v = n * fexp(t*lnTau)
 		}
 		o.A += v
 		o.T += t * v
@@ -561,7 +561,7 @@ func (q *eos) ideal(tau float64) ideal {
 	}
 	for k, n := range q.peN {
 		x := q.peT[k] * tau
-		e := math.Exp(-x) // exp(-theta tau)
+		e := fexp(-x) // exp(-theta tau)
 		o.A += n * math.Log1p(-e)
 		em := 1 - e // exact enough unless x is small
 		if x < 0.5 {
@@ -573,7 +573,7 @@ func (q *eos) ideal(tau float64) ideal {
 	for k, n := range q.pgN {
 		x := q.pgT[k] * tau
 		c, d := q.pgC[k], q.pgD[k]
-		e := math.Exp(x)
+		e := fexp(x)
 		den := c + d*e
 		o.A += n * math.Log(den)
 		o.T += n * x * d * e / den
@@ -593,7 +593,7 @@ func (q *eos) b2NonAnalytic(tau float64) float64 {
 			continue
 		}
 		th := -tm + q.nACap[k]
-		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * math.Exp(-ex)
+		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * fexp(-ex)
 	}
 	return b2
 }
