@@ -41,7 +41,7 @@ func fexp(x float64) float64 {
 		c6     = 1.0 / 720
 	)
 	t := x*invL + shift
-	k := t - shift // nearest integer to x 64/ln2
+	k := t - shift                   // nearest integer to x 64/ln2
 	ki := int64(math.Float64bits(t)) // low bits hold k (two's complement)
 	r := (x - k*ln2Hi) - k*ln2Lo
 	p := r + r*r*(c2+r*(c3+r*(c4+r*(c5+r*c6))))
