@@ -123,35 +123,47 @@ func (f *Fluid) classify(T, p float64) (thermo.Phase, satPoint, error) {
 }
 
 func (f *Fluid) flashPT(p, T float64) (thermo.State, error) {
+	s, _, err := f.flashPTr(p, T)
+	return s, err
+}
+
+// flashPTr is flashPT, also returning the residual derivatives at the state.
+func (f *Fluid) flashPTr(p, T float64) (thermo.State, resid, error) {
 	if err := f.checkP(p); err != nil {
-		return thermo.State{}, err
+		return thermo.State{}, resid{}, err
 	}
 	if err := f.checkT(T); err != nil {
-		return thermo.State{}, err
+		return thermo.State{}, resid{}, err
 	}
 	ph, sp, err := f.classify(T, p)
 	if err != nil {
-		return thermo.State{}, err
+		return thermo.State{}, resid{}, err
 	}
 	var spp *satPoint // the Maxwell solution when classify needed it
 	if sp.T > 0 {
 		spp = &sp
 	}
-	return f.statePT(p, T, ph, spp, 0)
+	return f.statePTr(p, T, ph, spp, 0)
 }
 
 // statePT solves the density on the given branch and evaluates the state.
 func (f *Fluid) statePT(p, T float64, ph thermo.Phase, sp *satPoint, guess float64) (thermo.State, error) {
+	s, _, err := f.statePTr(p, T, ph, sp, guess)
+	return s, err
+}
+
+// statePTr is statePT, also returning the residual derivatives at the state.
+func (f *Fluid) statePTr(p, T float64, ph thermo.Phase, sp *satPoint, guess float64) (thermo.State, resid, error) {
 	var tp tauPart
 	f.q.tauPart(f.tr/T, &tp)
 	rho, r, err := f.density(&tp, T, p, ph, sp, guess)
 	if err != nil {
-		return thermo.State{}, err
+		return thermo.State{}, resid{}, err
 	}
 	s, _ := f.propsR(&tp, T, rho, r)
 	s.P = p
 	s.Phase = ph
-	return s, nil
+	return s, r, nil
 }
 
 // mix returns the two-phase state of quality x on the saturation line sp.
@@ -263,20 +275,20 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		}
 		return s.S, s.Cp / s.T
 	}
-	state := func(T, guess float64) (thermo.State, error) {
+	state := func(T, guess float64) (thermo.State, resid, error) {
 		switch branch {
 		case thermo.PhaseLiquid, thermo.PhaseVapour:
 			// The branch is known from the phase boundary at p; above Tc
 			// the vapour branch continues as gas below pc.
-			return f.statePT(p, T, branch, nil, guess)
+			return f.statePTr(p, T, branch, nil, guess)
 		case thermo.PhaseSupercritical:
 			ph := thermo.PhaseSupercritical
 			if T < f.tc {
 				ph = thermo.PhaseLiquid
 			}
-			return f.statePT(p, T, ph, nil, guess)
+			return f.statePTr(p, T, ph, nil, guess)
 		}
-		return f.flashPT(p, T)
+		return f.flashPTr(p, T)
 	}
 	// Starting temperature.
 	var T float64
@@ -297,7 +309,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 	guess := 0.0 // density of the previous iterate: start of the next density solve
 	fxPrev := math.Inf(1)
 	for it := 0; it < 100; it++ {
-		s, err := state(T, guess)
+		s, r, err := state(T, guess)
 		if err != nil {
 			return thermo.State{}, err
 		}
@@ -341,7 +353,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		}
 		if (Tn == lo && !loKnown) || (Tn == hi && !hiKnown) {
 			// Evaluate the bound; if the target is beyond it, report range.
-			sb, err := state(Tn, 0)
+			sb, _, err := state(Tn, 0)
 			if err != nil {
 				return thermo.State{}, err
 			}
@@ -362,7 +374,14 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		if math.Abs(Tn-T) <= 1e-14*T && math.Abs(fx) <= 1e-9*scale {
 			return s, nil
 		}
+		// Start the next density solve from the isobar's tangent:
+		// (drho/dT)_p = -(dp/dT)_rho / (dp/drho)_T = -rho X/(T Y).
 		guess = s.Rho
+		if X, Y := 1+r.D-r.DT, 1+2*r.D+r.DD; Y > 0 {
+			if g := s.Rho * (1 - X/Y*(Tn-T)/T); g > 0.5*s.Rho && g < 2*s.Rho {
+				guess = g
+			}
+		}
 		T = Tn
 	}
 	q := "s"
