@@ -290,6 +290,11 @@ func (f *Fluid) virialGuess(tp *tauPart, rhoIG float64) float64 {
 		b2 += f.q.b2NonAnalytic(tp.tau)
 	}
 	c := 4 * b2 * rhoIG / f.rhor
+	if c <= -1 {
+		// p lies above the largest pressure of the truncated virial
+		// equation: start at the density where its root disappears.
+		return 2 * rhoIG
+	}
 	if !(c > -1) || c > 1 {
 		return rhoIG
 	}
