@@ -53,6 +53,7 @@ type eos struct {
 
 	// non-analytic terms
 	nN, nA, nB, nBeta, nACap, nBCap, nC, nD []float64
+	nA2                                     []int // 2(a-1) when a non-negative integer (q^(a-1) = |delta-1|^(2(a-1))), else -1
 
 	// ideal part
 	i1, i2   float64   // lead a1 + a2 tau (CoolProp offset included when kept)
@@ -184,6 +185,14 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 			q.nBCap = append(q.nBCap, t.BCap...)
 			q.nC = append(q.nC, t.CCap...)
 			q.nD = append(q.nD, t.DCap...)
+			for _, a := range t.Asmall {
+				m := 2 * (a - 1)
+				if m == math.Trunc(m) && m >= 0 && m <= 16 {
+					q.nA2 = append(q.nA2, int(m))
+				} else {
+					q.nA2 = append(q.nA2, -1)
+				}
+			}
 		default:
 			return nil, fmt.Errorf("unknown residual term type %q", t.Type)
 		}
@@ -493,7 +502,11 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 			qib1, qa1, qib = 0, 0, 0 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
 			if qq > 0 {
 				qib1 = fexp((ib - 1) * lnq)
-				qa1 = fexp((a - 1) * lnq)
+				if m := q.nA2[k]; m >= 0 {
+					qa1 = powi(math.Abs(dm), m)
+				} else {
+					qa1 = fexp((a - 1) * lnq)
+				}
 				qib = qib1 * qq
 			}
 			theta = -tm + A*qib

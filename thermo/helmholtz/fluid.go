@@ -146,16 +146,16 @@ func (a *ancillary) eval(T float64) float64 {
 	if th > 0 {
 		lth := math.Log(th)
 		for i, n := range a.n {
-			s += n * math.Exp(a.t[i]*lth)
+			s += n * fexp(a.t[i]*lth)
 		}
 	}
 	switch a.kind {
 	case 0:
 		return a.r * (1 + s)
 	case 1:
-		return a.r * math.Exp(a.tr/T*s)
+		return a.r * fexp(a.tr/T*s)
 	default:
-		return a.r * math.Exp(s)
+		return a.r * fexp(s)
 	}
 }
 
