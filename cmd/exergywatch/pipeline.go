@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"log/slog"
 	"path/filepath"
+	"runtime"
 	"sort"
 	"sync"
 	"sync/atomic"
@@ -71,12 +72,18 @@ type pipeline struct {
 	state   *store.Store
 	history *store.Store // the store sink, when configured (status history)
 
-	mu         sync.Mutex // guards evaluator state read by the status API
-	evaluated  atomic.Uint64
-	events     atomic.Uint64
-	lastTick   atomic.Int64
-	sinkErrors atomic.Uint64
-	ready      atomic.Bool
+	// locks holds one mutex per evaluator (by machine ID), held while the
+	// evaluator evaluates and while the status API or the state saver reads
+	// it: machines evaluate concurrently, each in tick order.
+	locks map[string]*sync.Mutex
+	// quietAlerts logs alert transitions at debug level (replay: a year of
+	// history would flood the log; the summary counts them).
+	quietAlerts bool
+	evaluated   atomic.Uint64
+	events      atomic.Uint64
+	lastTick    atomic.Int64
+	sinkErrors  atomic.Uint64
+	ready       atomic.Bool
 }
 
 type namedSource struct {
@@ -96,7 +103,8 @@ func buildPipeline(cfg *config.Config, opt pipelineOptions) (p *pipeline, err er
 	if opt.stateFlush == 0 {
 		opt.stateFlush = 10 * time.Second
 	}
-	p = &pipeline{cfg: cfg, opt: opt, log: opt.log, reg: prometheus.NewRegistry(), metrics: &ingest.Metrics{}, evals: map[string]*evaluator{}}
+	p = &pipeline{cfg: cfg, opt: opt, log: opt.log, reg: prometheus.NewRegistry(), metrics: &ingest.Metrics{}, evals: map[string]*evaluator{},
+		locks: map[string]*sync.Mutex{}}
 	var closers []func()
 	defer func() {
 		if err != nil {
@@ -141,6 +149,7 @@ func buildPipeline(cfg *config.Config, opt pipelineOptions) (p *pipeline, err er
 			return nil, err
 		}
 		p.evals[m.ID] = e
+		p.locks[m.ID] = new(sync.Mutex)
 		p.order = append(p.order, m.ID)
 	}
 	sort.Strings(p.order)
@@ -321,59 +330,146 @@ func (p *pipeline) run(ctx context.Context) error {
 }
 
 // evaluateBatch evaluates the snapshots of one tick and writes the results.
+// Machines are independent: their snapshots are evaluated concurrently on up
+// to GOMAXPROCS goroutines, each machine's snapshots in batch order by one
+// goroutine. It returns when every snapshot has been handled.
 func (p *pipeline) evaluateBatch(ctx context.Context, batch []*align.Snapshot) {
-	for _, s := range batch {
-		e, ok := p.evals[s.Machine]
-		if !ok {
-			s.Release()
-			continue
+	workers := min(runtime.GOMAXPROCS(0), len(batch))
+	if workers <= 1 {
+		for _, s := range batch {
+			p.evaluateOne(ctx, s)
 		}
-		p.mu.Lock()
-		rec, events := e.evaluate(s)
-		daily := e.takeDaily()
-		p.mu.Unlock()
-		for _, d := range daily {
-			if err := p.multi.WriteRecord(context.WithoutCancel(ctx), d); err != nil {
-				p.sinkErrors.Add(1)
-			}
-		}
-		p.evaluated.Add(1)
-		p.lastTick.Store(s.At.UnixNano())
-		if err := p.multi.WriteRecord(context.WithoutCancel(ctx), rec); err != nil {
-			p.sinkErrors.Add(1)
-		}
-		for _, ev := range events {
-			p.events.Add(1)
-			lvl := slog.LevelInfo
-			if ev.To == compute.AlertFiring {
-				lvl = slog.LevelWarn
-			}
-			p.log.Log(ctx, lvl, "alert "+ev.To.String(), "machine", ev.Machine, "rule", ev.Rule, "class", string(ev.Class),
-				"figure", ev.Figure, "value", ev.Value, "limit", ev.Limit, "reason", ev.Reason)
-			if err := p.multi.WriteEvent(context.WithoutCancel(ctx), ev); err != nil {
-				p.sinkErrors.Add(1)
-			}
-			if err := p.state.WriteEvent(context.WithoutCancel(ctx), ev); err != nil {
-				p.log.Warn("alert event not stored", "err", err)
-			}
-			if p.opt.onEvent != nil {
-				p.opt.onEvent(ev)
-			}
-		}
-		if p.opt.onRecord != nil {
-			p.opt.onRecord(rec)
-		}
-		// The record and its events are in the sinks' queues (or counted as
-		// dropped): the samples behind it may now be acknowledged.
-		s.Release()
+		return
 	}
+	// One job per machine (a tick normally has one snapshot per machine).
+	var jobs [][]*align.Snapshot
+	index := make(map[string]int, len(batch))
+	for _, s := range batch {
+		k, ok := index[s.Machine]
+		if !ok {
+			k = len(jobs)
+			index[s.Machine] = k
+			jobs = append(jobs, nil)
+		}
+		jobs[k] = append(jobs[k], s)
+	}
+	workers = min(workers, len(jobs))
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				k := int(next.Add(1) - 1)
+				if k >= len(jobs) {
+					return
+				}
+				for _, s := range jobs[k] {
+					p.evaluateOne(ctx, s)
+				}
+			}
+		}()
+	}
+	wg.Wait()
+}
+
+// evalOutcome is what evaluateOne did, for the callers' counters.
+type evalOutcome struct {
+	evaluated   bool // false: no evaluator for the snapshot's machine
+	quality     compute.Quality
+	transitions int // alert transitions raised
+	firing      int // of which to firing
+	sinkDrops   int // records or events the fan-out could not queue
+}
+
+// evaluateOne evaluates one snapshot under its evaluator's lock and writes
+// the daily records it completed, the record and its alert events to the
+// sinks (and the events to the state store), then releases the snapshot.
+// Safe for concurrent use with snapshots of different machines; the
+// snapshots of one machine must come in tick order.
+func (p *pipeline) evaluateOne(ctx context.Context, s *align.Snapshot) evalOutcome {
+	var out evalOutcome
+	e, ok := p.evals[s.Machine]
+	mu := p.locks[s.Machine]
+	if !ok || mu == nil {
+		s.Release()
+		return out
+	}
+	mu.Lock()
+	rec, events := e.evaluate(s)
+	daily := e.takeDaily()
+	mu.Unlock()
+	out.evaluated, out.quality = true, rec.Quality
+	wctx := context.WithoutCancel(ctx)
+	for _, d := range daily {
+		if err := p.multi.WriteRecord(wctx, d); err != nil {
+			p.sinkErrors.Add(1)
+			out.sinkDrops++
+		}
+	}
+	p.evaluated.Add(1)
+	for at := s.At.UnixNano(); ; { // the newest tick evaluated
+		last := p.lastTick.Load()
+		if at <= last || p.lastTick.CompareAndSwap(last, at) {
+			break
+		}
+	}
+	if err := p.multi.WriteRecord(wctx, rec); err != nil {
+		p.sinkErrors.Add(1)
+		out.sinkDrops++
+	}
+	for _, ev := range events {
+		p.events.Add(1)
+		out.transitions++
+		lvl := slog.LevelInfo
+		if ev.To == compute.AlertFiring {
+			lvl = slog.LevelWarn
+			out.firing++
+		}
+		if p.quietAlerts {
+			lvl = slog.LevelDebug
+		}
+		p.log.Log(ctx, lvl, "alert "+ev.To.String(), "machine", ev.Machine, "rule", ev.Rule, "class", string(ev.Class),
+			"figure", ev.Figure, "value", ev.Value, "limit", ev.Limit, "reason", ev.Reason)
+		if err := p.multi.WriteEvent(wctx, ev); err != nil {
+			p.sinkErrors.Add(1)
+			out.sinkDrops++
+		}
+		if err := p.state.WriteEvent(wctx, ev); err != nil {
+			p.log.Warn("alert event not stored", "err", err)
+		}
+		if p.opt.onEvent != nil {
+			p.opt.onEvent(ev)
+		}
+	}
+	if p.opt.onRecord != nil {
+		p.opt.onRecord(rec)
+	}
+	// The record and its events are in the sinks' queues (or counted as
+	// dropped): the samples behind it may now be acknowledged.
+	s.Release()
+	return out
+}
+
+// lockedEval runs f on the evaluator of machine id under its lock.
+func (p *pipeline) lockedEval(id string, f func(e *evaluator)) {
+	e, ok := p.evals[id]
+	if !ok {
+		return
+	}
+	if mu := p.locks[id]; mu != nil {
+		mu.Lock()
+		defer mu.Unlock()
+	}
+	f(e)
 }
 
 func (p *pipeline) saveState() {
-	p.mu.Lock()
-	defer p.mu.Unlock()
-	for id, e := range p.evals {
-		b, err := e.marshalState()
+	for _, id := range p.order {
+		var b []byte
+		var err error
+		p.lockedEval(id, func(e *evaluator) { b, err = e.marshalState() })
 		if err == nil {
 			err = p.state.PutState("machine", id, b)
 		}

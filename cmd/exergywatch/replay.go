@@ -700,6 +700,9 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 	// collecting less often costs memory (bounded: nothing accumulates) and
 	// saves a few per cent of CPU.
 	defer debug.SetGCPercent(debug.SetGCPercent(400))
+	// A year of history raises thousands of alert transitions: the summary
+	// counts them; the log gets them at debug level.
+	p.quietAlerts = true
 	iv := p.cfg.Evaluation.Interval.D()
 	if iv <= 0 {
 		return res, fmt.Errorf("evaluation interval %v: must be positive", iv)
@@ -757,7 +760,7 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 				for _, s := range batch {
 					t0 := time.Now()
 					k, known := index[s.Machine]
-					p.replayEvaluate(wctx, s, w)
+					w.add(p.evaluateOne(wctx, s))
 					if known {
 						cost[k].Add(int64(time.Since(t0)))
 					}
@@ -962,48 +965,18 @@ func assignLPT(costs []int64, workers int) []int {
 	return out
 }
 
-// replayEvaluate is evaluateBatch for one snapshot without the pipeline-wide
-// lock (which serialises every machine; a replay has no status API reading
-// evaluator state, and each evaluator is used by one goroutine only).
-func (p *pipeline) replayEvaluate(ctx context.Context, s *align.Snapshot, w *replayWorker) {
-	e, ok := p.evals[s.Machine]
-	if !ok {
-		s.Release()
+// add counts one evaluation of the worker's.
+func (w *replayWorker) add(o evalOutcome) {
+	if !o.evaluated {
 		return
 	}
-	rec, events := e.evaluate(s)
 	atomic.AddUint64(&w.evals, 1)
-	if q := int(rec.Quality); q >= 0 && q < len(w.q) {
+	if q := int(o.quality); q >= 0 && q < len(w.q) {
 		w.q[q]++
 	}
-	p.evaluated.Add(1)
-	if err := p.multi.WriteRecord(ctx, rec); err != nil {
-		p.sinkErrors.Add(1)
-		w.sinkDrops++
-	}
-	for _, ev := range events {
-		p.events.Add(1)
-		w.trans++
-		if ev.To == compute.AlertFiring {
-			w.firing++
-		}
-		p.log.Debug("alert "+ev.To.String(), "machine", ev.Machine, "rule", ev.Rule, "class", string(ev.Class),
-			"figure", ev.Figure, "value", ev.Value, "limit", ev.Limit, "reason", ev.Reason)
-		if err := p.multi.WriteEvent(ctx, ev); err != nil {
-			p.sinkErrors.Add(1)
-			w.sinkDrops++
-		}
-		if err := p.state.WriteEvent(ctx, ev); err != nil {
-			p.log.Warn("alert event not stored", "err", err)
-		}
-		if p.opt.onEvent != nil {
-			p.opt.onEvent(ev)
-		}
-	}
-	if p.opt.onRecord != nil {
-		p.opt.onRecord(rec)
-	}
-	s.Release()
+	w.trans += uint64(o.transitions)
+	w.firing += uint64(o.firing)
+	w.sinkDrops += uint64(o.sinkDrops)
 }
 
 // ---- the command ----------------------------------------------------------

@@ -168,48 +168,50 @@ func finitePtr(v float64) *float64 {
 }
 
 func (p *pipeline) status() statusView {
-	p.mu.Lock()
-	defer p.mu.Unlock()
 	v := statusView{Site: p.cfg.Site.Name, Advisory: advisoryNote, Time: time.Now().UTC(), Alerts: []alertView{}}
 	for _, id := range p.order {
-		e := p.evals[id]
-		mv := machineView{ID: id, Kind: e.kind.String(), Mode: e.lastMode.String(), ModeDetail: e.modeWhy, Steady: e.lastSteady, R: e.lastR,
-			Time: e.last.Time, Quality: e.last.Quality.String(), Reasons: e.last.Reasons, Figures: map[string]figureView{},
-			Baseline: e.baseline, Deviation: map[string]float64{}, Inputs: e.inputs, InputProblems: e.inputWhy}
-		if mv.Reasons == nil {
-			mv.Reasons = []string{}
-		}
-		for _, f := range e.last.Figures {
-			fv := figureView{Quality: f.Quality.String()}
-			if f.Quality != compute.QualityBad {
-				fv.Value = finitePtr(f.Value)
-				if f.HasU95 {
-					fv.U95 = finitePtr(f.U95)
-				}
-			}
-			if t, ok := e.trends[f.Name]; ok && t.N > 0 {
-				fv.Trend = finitePtr(t.Value)
-			}
-			mv.Figures[f.Name] = fv
-			if b, ok := e.baseline[f.Name]; ok && fv.Value != nil {
-				mv.Deviation[f.Name] = *fv.Value - b
-			}
-		}
-		if d, ok := e.daily.Current(); ok {
-			mv.Today = &d
-		}
-		if e.hasGood {
-			t := e.lastGood.Time
-			mv.LastGoodTime = &t
-		}
-		v.Machines = append(v.Machines, mv)
-		v.Alerts = append(v.Alerts, e.activeAlerts()...)
+		p.lockedEval(id, func(e *evaluator) { p.machineStatus(&v, id, e) })
 	}
 	v.Sinks = p.multi.Stats()
 	m := p.metrics
 	v.Ingest = ingestView{Received: m.Received.Load(), Accepted: m.Accepted.Load(), DecodeErrors: m.DecodeErrors.Load(),
 		QueueDropped: m.QueueDropped.Load(), Reconnects: m.Reconnects.Load(), Evaluations: p.evaluated.Load()}
 	return v
+}
+
+// machineStatus adds machine id to v; the caller holds e's lock.
+func (p *pipeline) machineStatus(v *statusView, id string, e *evaluator) {
+	mv := machineView{ID: id, Kind: e.kind.String(), Mode: e.lastMode.String(), ModeDetail: e.modeWhy, Steady: e.lastSteady, R: e.lastR,
+		Time: e.last.Time, Quality: e.last.Quality.String(), Reasons: e.last.Reasons, Figures: map[string]figureView{},
+		Baseline: e.baseline, Deviation: map[string]float64{}, Inputs: e.inputs, InputProblems: e.inputWhy}
+	if mv.Reasons == nil {
+		mv.Reasons = []string{}
+	}
+	for _, f := range e.last.Figures {
+		fv := figureView{Quality: f.Quality.String()}
+		if f.Quality != compute.QualityBad {
+			fv.Value = finitePtr(f.Value)
+			if f.HasU95 {
+				fv.U95 = finitePtr(f.U95)
+			}
+		}
+		if t, ok := e.trends[f.Name]; ok && t.N > 0 {
+			fv.Trend = finitePtr(t.Value)
+		}
+		mv.Figures[f.Name] = fv
+		if b, ok := e.baseline[f.Name]; ok && fv.Value != nil {
+			mv.Deviation[f.Name] = *fv.Value - b
+		}
+	}
+	if d, ok := e.daily.Current(); ok {
+		mv.Today = &d
+	}
+	if e.hasGood {
+		t := e.lastGood.Time
+		mv.LastGoodTime = &t
+	}
+	v.Machines = append(v.Machines, mv)
+	v.Alerts = append(v.Alerts, e.activeAlerts()...)
 }
 
 type alertsView struct {
@@ -220,11 +222,9 @@ type alertsView struct {
 
 func (p *pipeline) alertsView(n int) alertsView {
 	v := alertsView{Advisory: advisoryNote, Active: []alertView{}, Recent: []sinks.EventJSON{}}
-	p.mu.Lock()
 	for _, id := range p.order {
-		v.Active = append(v.Active, p.evals[id].activeAlerts()...)
+		p.lockedEval(id, func(e *evaluator) { v.Active = append(v.Active, e.activeAlerts()...) })
 	}
-	p.mu.Unlock()
 	if ev, err := p.state.RecentEvents("", n); err == nil {
 		for _, e := range ev {
 			if j, err := sinks.EventToJSON(e); err == nil {
