@@ -43,7 +43,6 @@
 package payload
 
 import (
-	"bytes"
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -200,9 +199,14 @@ func (d *Decoder) Decode(data []byte, recv time.Time, dst []ingest.Sample, errs 
 
 // Detect guesses the format from the first non-blank byte.
 func Detect(data []byte) Format {
-	t := bytes.TrimLeft(data, " \t\r\n")
-	if len(t) > 0 && (t[0] == '{' || t[0] == '[') {
-		return JSON
+	for _, c := range data {
+		switch c {
+		case ' ', '\t', '\r', '\n':
+			continue
+		case '{', '[':
+			return JSON
+		}
+		return LineProtocol
 	}
 	return LineProtocol
 }

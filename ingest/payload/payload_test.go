@@ -305,3 +305,20 @@ func TestNameCacheKeepsNamesApart(t *testing.T) {
 		}
 	}
 }
+
+// TestDetect: the first byte that is not a blank decides, as the package
+// documentation says; blank or empty payloads are line protocol.
+func TestDetect(t *testing.T) {
+	for _, tc := range []struct {
+		in   string
+		want Format
+	}{
+		{`{"tag":"a","value":1}`, JSON}, {" \t\r\n[{\"tag\":\"a\"}]", JSON}, {"\n\n{", JSON},
+		{"a value=1", LineProtocol}, {"  # comment\n{", LineProtocol}, {"", LineProtocol}, {" \t\r\n", LineProtocol},
+		{"\v{", LineProtocol}, // vertical tab is not a blank here
+	} {
+		if got := Detect([]byte(tc.in)); got != tc.want {
+			t.Errorf("Detect(%q) = %v, want %v", tc.in, got, tc.want)
+		}
+	}
+}
