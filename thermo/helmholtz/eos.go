@@ -40,6 +40,14 @@ type eos struct {
 	pDf  []float64   // float64(pD)
 	grp  []termGroup // power terms grouped by l (terms are sorted by l)
 
+	// The power terms sharing l and d differ only in n tau^t: tauPart sums
+	// them into one coefficient (and its tau derivatives) per (l, d) pair,
+	// so the delta-dependent work of residual is per pair.
+	pPair []int       // pair index of each power term
+	prD   []int       // d of each pair
+	prDf  []float64   // float64(prD)
+	prGrp []termGroup // pairs grouped by l, in the order of grp
+
 	// gaussian terms
 	gN, gD, gT, gEta, gEps, gBeta, gGam []float64
 	gDi                                 []int
@@ -86,7 +94,9 @@ type ideal struct {
 // iteration at fixed T reuses it. Value type, stack allocated.
 type tauPart struct {
 	tau  float64
-	pw   [maxPower]float64 // n tau^t
+	pp0  [maxPower]float64 // per (l, d) pair: sum of n tau^t
+	pp1  [maxPower]float64 // sum of n t tau^t
+	pp2  [maxPower]float64 // sum of n t (t-1) tau^t
 	gw   [maxGauss]float64 // n tau^t exp(-beta (tau-gamma)^2)
 	gt   [maxGauss]float64 // tau d/dtau ln(term)
 	gtt  [maxGauss]float64 // tau^2 F_tt / F
@@ -216,6 +226,23 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 			j++
 		}
 		q.grp = append(q.grp, termGroup{l: q.pL[i], start: i, end: j})
+		ps := len(q.prD)
+		for k := i; k < j; k++ {
+			pi := -1
+			for m := ps; m < len(q.prD); m++ {
+				if q.prD[m] == q.pD[k] {
+					pi = m
+					break
+				}
+			}
+			if pi < 0 {
+				q.prD = append(q.prD, q.pD[k])
+				q.prDf = append(q.prDf, float64(q.pD[k]))
+				pi = len(q.prD) - 1
+			}
+			q.pPair = append(q.pPair, pi)
+		}
+		q.prGrp = append(q.prGrp, termGroup{l: q.pL[i], start: ps, end: len(q.prD)})
 		i = j
 	}
 	if len(q.pN) > maxPower || len(q.gN) > maxGauss || len(q.aN) > maxAssoc || len(q.nN) > maxNA {
@@ -345,10 +372,20 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		ut[j] = tauPow(tau, &roots, lnTau, t)
 	}
 	b2 := 0.0
+	np := len(q.prD)
+	pp0, pp1, pp2 := tp.pp0[:np], tp.pp1[:np], tp.pp2[:np]
+	clear(pp0)
+	clear(pp1)
+	clear(pp2)
 	for k, n := range q.pN {
-		tp.pw[k] = n * ut[q.pTi[k]]
+		w := n * ut[q.pTi[k]]
+		t := q.pT[k]
+		j := q.pPair[k]
+		pp0[j] += w
+		pp1[j] += w * t
+		pp2[j] += w * t * (t - 1)
 		if q.pD[k] == 1 {
-			b2 += tp.pw[k]
+			b2 += w
 		}
 	}
 	for k, n := range q.gN {
@@ -389,11 +426,10 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 	for i := 1; i <= q.maxD; i++ {
 		dp[i] = dp[i-1] * delta
 	}
-	pw := tp.pw[:len(q.pN)]
-	pD := q.pD[:len(pw)]
-	pDf := q.pDf[:len(pw)]
-	pT := q.pT[:len(pw)]
-	for _, gr := range q.grp {
+	np := len(q.prD)
+	pp0, pp1, pp2 := tp.pp0[:np], tp.pp1[:np], tp.pp2[:np]
+	prD, prDf := q.prD[:np], q.prDf[:np]
+	for _, gr := range q.prGrp {
 		e, lx, llx := 1.0, 0.0, 0.0
 		if gr.l > 0 {
 			x := powi(delta, gr.l) // delta^l
@@ -402,22 +438,22 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 			lx, llx = fl*x, fl*fl*x
 		}
 		if full {
-			for k := gr.start; k < gr.end; k++ {
-				F := pw[k] * dp[pD[k]&maxDexp] * e
-				g := pDf[k] - lx
-				Fg := F * g
-				t := pT[k]
+			for j := gr.start; j < gr.end; j++ {
+				de := dp[prD[j]&maxDexp] * e
+				F := pp0[j] * de
+				g := prDf[j] - lx
+				Ft := pp1[j] * de
 				r.A += F
-				r.D += Fg
+				r.D += F * g
 				r.DD += F * (g*(g-1) - llx)
-				r.T += F * t
-				r.TT += F * t * (t - 1)
-				r.DT += Fg * t
+				r.T += Ft
+				r.TT += pp2[j] * de
+				r.DT += Ft * g
 			}
 		} else {
-			for k := gr.start; k < gr.end; k++ {
-				F := pw[k] * dp[pD[k]&maxDexp] * e
-				g := pDf[k] - lx
+			for j := gr.start; j < gr.end; j++ {
+				F := pp0[j] * dp[prD[j]&maxDexp] * e
+				g := prDf[j] - lx
 				r.A += F
 				r.D += F * g
 				r.DD += F * (g*(g-1) - llx)
