@@ -82,6 +82,7 @@ type termGroup struct {
 // TT = tau^2 ar_tt, DT = delta tau ar_dt.
 type resid struct {
 	A, D, DD, T, TT, DT float64
+	DDD                 float64 // delta^3 ar_ddd without the non-analytic terms (only steers the density iteration)
 }
 
 // ideal is the ideal-gas part, scaled like resid (alpha_0 depends on delta
@@ -430,12 +431,13 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 	pp0, pp1, pp2 := tp.pp0[:np], tp.pp1[:np], tp.pp2[:np]
 	prD, prDf := q.prD[:np], q.prDf[:np]
 	for _, gr := range q.prGrp {
-		e, lx, llx := 1.0, 0.0, 0.0
+		e, lx, llx, lllx := 1.0, 0.0, 0.0, 0.0
 		if gr.l > 0 {
 			x := powi(delta, gr.l) // delta^l
 			e = fexp(-x)
 			fl := float64(gr.l)
 			lx, llx = fl*x, fl*fl*x
+			lllx = fl * llx
 		}
 		if full {
 			for j := gr.start; j < gr.end; j++ {
@@ -443,9 +445,11 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 				F := pp0[j] * de
 				g := prDf[j] - lx
 				Ft := pp1[j] * de
+				h := g*(g-1) - llx
 				r.A += F
 				r.D += F * g
-				r.DD += F * (g*(g-1) - llx)
+				r.DD += F * h
+				r.DDD += F * (g*h - (2*g-1)*llx - lllx - 2*h)
 				r.T += Ft
 				r.TT += pp2[j] * de
 				r.DT += Ft * g
@@ -454,9 +458,11 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 			for j := gr.start; j < gr.end; j++ {
 				F := pp0[j] * dp[prD[j]&maxDexp] * e
 				g := prDf[j] - lx
+				h := g*(g-1) - llx
 				r.A += F
 				r.D += F * g
-				r.DD += F * (g*(g-1) - llx)
+				r.DD += F * h
+				r.DDD += F * (g*h - (2*g-1)*llx - lllx - 2*h)
 			}
 		}
 	}
@@ -470,9 +476,12 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		}
 		F := tp.gw[k] * dp[q.gDi[k]] * ge
 		gd := q.gD[k] - g2
+		h := gd*gd - q.gD[k] - 2*eta*delta*delta
 		r.A += F
 		r.D += F * gd
-		r.DD += F * (gd*gd - q.gD[k] - 2*eta*delta*delta)
+		r.DD += F * h
+		// delta^3 F_ddd / F = gd h + (2 gd - 1) D1(gd) + D1^2(gd) - 2 h, D1 = delta d/ddelta
+		r.DDD += F * (gd*h - (2*gd-1)*2*eta*delta*(2*delta-eps) - 2*eta*delta*(4*delta-eps) - 2*h)
 		if full {
 			r.T += F * tp.gt[k]
 			r.TT += F * tp.gtt[k]
@@ -484,9 +493,11 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		de := delta - eps
 		F := tp.aw[k] * dp[q.aDi[k]] * fexp(eta*de*de)
 		gd := q.aD[k] + 2*eta*delta*de
+		h := gd*gd - q.aD[k] + 2*eta*delta*delta
 		r.A += F
 		r.D += F * gd
-		r.DD += F * (gd*gd - q.aD[k] + 2*eta*delta*delta)
+		r.DD += F * h
+		r.DDD += F * (gd*h + (2*gd-1)*2*eta*delta*(2*delta-eps) + 2*eta*delta*(4*delta-eps) - 2*h)
 		if full {
 			r.T += F * tp.at[k]
 			r.TT += F * tp.att[k]

@@ -155,7 +155,14 @@ func (f *Fluid) solveRho(tp *tauPart, T, p float64, sd side, lo, hi, rho float64
 		}
 		next := math.NaN()
 		if dp > 0 {
-			next = rho - fx/dp
+			// Halley's step with d2p/drho2 = RT (2D + 4DD + DDD)/rho;
+			// Newton's when the correction is large (far from the root).
+			nt := fx / dp
+			c := 1 - 0.5*nt*(RT*(2*r.D+4*r.DD+r.DDD)/rho)/dp
+			if c >= 0.5 && c <= 2 {
+				nt /= c
+			}
+			next = rho - nt
 		}
 		if !(next > lo) || (hi > 0 && !(next < hi)) {
 			if hi > 0 {
