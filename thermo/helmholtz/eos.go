@@ -106,6 +106,7 @@ type tauPart struct {
 	att  [maxAssoc]float64
 	hasN bool
 	b2   float64 // lim delta->0 of ar_d: B rho_r, B the second virial coefficient
+	c3   float64 // C rho_r^2, C the third virial coefficient, without the non-analytic terms
 }
 
 func toInts(name string, v []float64, max int) ([]int, error) {
@@ -372,7 +373,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 	for j, t := range q.uniq {
 		ut[j] = tauPow(tau, &roots, lnTau, t)
 	}
-	b2 := 0.0
+	b2, c3 := 0.0, 0.0
 	np := len(q.prD)
 	pp0, pp1, pp2 := tp.pp0[:np], tp.pp1[:np], tp.pp2[:np]
 	clear(pp0)
@@ -385,8 +386,14 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		pp0[j] += w
 		pp1[j] += w * t
 		pp2[j] += w * t * (t - 1)
-		if q.pD[k] == 1 {
+		switch {
+		case q.pD[k] == 1:
 			b2 += w
+			if q.pL[k] == 1 {
+				c3 -= w // delta exp(-delta) = delta - delta^2 + ...
+			}
+		case q.pD[k] == 2:
+			c3 += w
 		}
 	}
 	for k, n := range q.gN {
@@ -396,8 +403,12 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		gt := t - 2*b*tau*dt
 		tp.gt[k] = gt
 		tp.gtt[k] = gt*gt - t - 2*b*tau*tau
-		if q.gDi[k] == 1 {
+		switch q.gDi[k] {
+		case 1:
 			b2 += tp.gw[k] * q.g0[k]
+			c3 += tp.gw[k] * q.g0[k] * 2 * q.gEta[k] * q.gEps[k]
+		case 2:
+			c3 += tp.gw[k] * q.g0[k]
 		}
 	}
 	for k, n := range q.aN {
@@ -409,12 +420,17 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		htp := -2 * b * ((2*tau-g)*u - 4*b*tau*dt*dt) / (u * u * u)
 		tp.at[k] = ht
 		tp.att[k] = ht*ht - ht + tau*htp
-		if q.aDi[k] == 1 {
+		switch q.aDi[k] {
+		case 1:
 			b2 += tp.aw[k] * q.a0[k]
+			c3 -= tp.aw[k] * q.a0[k] * 2 * q.aEta[k] * q.aEps[k]
+		case 2:
+			c3 += tp.aw[k] * q.a0[k]
 		}
 	}
 	tp.hasN = len(q.nN) > 0
 	tp.b2 = b2 // without the non-analytic terms: see b2NonAnalytic
+	tp.c3 = 2 * c3
 }
 
 // residual evaluates alpha_r and its scaled derivatives at delta using the

@@ -305,5 +305,22 @@ func (f *Fluid) virialGuess(tp *tauPart, rhoIG float64) float64 {
 	if !(c > -1) || c > 1 {
 		return rhoIG
 	}
-	return 2 * rhoIG / (1 + math.Sqrt(1+c))
+	rho := 2 * rhoIG / (1 + math.Sqrt(1+c))
+	// Refine with the third virial coefficient: Newton on
+	// delta (1 + B' delta + C' delta^2) = delta_IG, kept only if it stays
+	// within 10 % of the two-term root.
+	dIG, d := rhoIG/f.rhor, rho/f.rhor
+	c3 := tp.c3
+	for i := 0; i < 3; i++ {
+		F := d*(1+b2*d+c3*d*d) - dIG
+		dF := 1 + 2*b2*d + 3*c3*d*d
+		if !(dF > 0) {
+			return rho
+		}
+		d -= F / dF
+	}
+	if r3 := d * f.rhor; r3 > 0.9*rho && r3 < 1.1*rho {
+		return r3
+	}
+	return rho
 }
