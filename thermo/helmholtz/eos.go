@@ -61,7 +61,8 @@ type eos struct {
 
 	// non-analytic terms
 	nN, nA, nB, nBeta, nACap, nBCap, nC, nD []float64
-	nA2                                     []int // 2(a-1) when a non-negative integer (q^(a-1) = |delta-1|^(2(a-1))), else -1
+	nA2                                     []int     // 2(a-1) when a non-negative integer (q^(a-1) = |delta-1|^(2(a-1))), else -1
+	nIB, nIB1, n2B, n4B, nAB2               []float64 // 1/(2 beta), 1/(2 beta) - 1, 2/beta, 4/beta, (A/beta)^2
 
 	// ideal part
 	i1, i2   float64   // lead a1 + a2 tau (CoolProp offset included when kept)
@@ -197,6 +198,14 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 			q.nBCap = append(q.nBCap, t.BCap...)
 			q.nC = append(q.nC, t.CCap...)
 			q.nD = append(q.nD, t.DCap...)
+			for i, beta := range t.Beta {
+				ib := 1 / (2 * beta)
+				q.nIB = append(q.nIB, ib)
+				q.nIB1 = append(q.nIB1, ib-1)
+				q.n2B = append(q.n2B, 2/beta)
+				q.n4B = append(q.n4B, 4/beta)
+				q.nAB2 = append(q.nAB2, t.ACap[i]*t.ACap[i]/(beta*beta))
+			}
 			for _, a := range t.Asmall {
 				m := 2 * (a - 1)
 				if m == math.Trunc(m) && m >= 0 && m <= 16 {
@@ -559,12 +568,11 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 			pC, pD = C, D
 			psi = fexp(-ex)
 		}
-		ib := 1 / (2 * beta)
 		if a != pa || beta != pbeta || A != pA || B != pB {
 			pa, pbeta, pA, pB = a, beta, A, B
 			qib1, qa1, qib = 0, 0, 0 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
 			if qq > 0 {
-				qib1 = fexp((ib - 1) * lnq)
+				qib1 = fexp(q.nIB1[k] * lnq)
 				if m := q.nA2[k]; m >= 0 {
 					qa1 = powi(math.Abs(dm), m)
 				} else {
@@ -576,21 +584,22 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 			Delta = theta*theta + B*qa1*qq
 			lnDelta = math.Log(Delta)
 			// Delta derivatives with respect to delta.
-			dOver = A*theta*(2/beta)*qib1 + 2*B*a*qa1 // Delta_d/(delta-1)
+			dOver = A*theta*q.n2B[k]*qib1 + 2*B*a*qa1 // Delta_d/(delta-1)
 			Dd = dm * dOver
-			Ddd = dOver + 4*B*a*(a-1)*qa1 + 2*A*A/(beta*beta)*qib1*qib1*qq + A*theta*(4/beta)*(ib-1)*qib1
+			Ddd = dOver + 4*B*a*(a-1)*qa1 + 2*q.nAB2[k]*qib1*qib1*qq + A*theta*q.n4B[k]*q.nIB1[k]*qib1
 		}
 		var Db, Db1, Db2 float64 // Delta^b, Delta^(b-1), Delta^(b-2)
 		if Delta > 0 {
+			iD := 1 / Delta
 			Db = fexp(b * lnDelta)
-			Db1 = Db / Delta
-			Db2 = Db1 / Delta
+			Db1 = Db * iD
+			Db2 = Db1 * iD
 		}
 		Dbd := b * Db1 * Dd
 		Dbdd := b * (Db1*Ddd + (b-1)*Db2*Dd*Dd)
 		Dbt := -2 * theta * b * Db1
 		Dbtt := 2*b*Db1 + 4*theta*theta*b*(b-1)*Db2
-		Dbdt := -A*b*(2/beta)*Db1*dm*qib1 - 2*theta*b*(b-1)*Db2*Dd
+		Dbdt := -A*b*q.n2B[k]*Db1*dm*qib1 - 2*theta*b*(b-1)*Db2*Dd
 		psid := -2 * C * dm * psi
 		psidd := (2*C*qq - 1) * 2 * C * psi
 		psit := -2 * D * tm * psi
