@@ -44,6 +44,8 @@ type eos struct {
 	// them into one coefficient (and its tau derivatives) per (l, d) pair,
 	// so the delta-dependent work of residual is per pair.
 	pPair []int       // pair index of each power term
+	prS   []int       // terms prS[j]..prS[j+1]-1 form pair j (sorted by l, then d)
+	pTT   []float64   // t (t-1) of each power term
 	prD   []int       // d of each pair
 	prDf  []float64   // float64(prD)
 	prGrp []termGroup // pairs grouped by l, in the order of grp
@@ -224,7 +226,14 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 	for i := range idx {
 		idx[i] = i
 	}
-	sort.SliceStable(idx, func(a, b int) bool { return q.pL[idx[a]] < q.pL[idx[b]] })
+	// Within a group, sort by d as well: terms sharing (l, d) form one run.
+	sort.SliceStable(idx, func(a, b int) bool {
+		ia, ib := idx[a], idx[b]
+		if q.pL[ia] != q.pL[ib] {
+			return q.pL[ia] < q.pL[ib]
+		}
+		return q.pD[ia] < q.pD[ib]
+	})
 	pN, pD, pT, pL := q.pN, q.pD, q.pT, q.pL
 	q.pN, q.pD, q.pT, q.pL = make([]float64, len(idx)), make([]int, len(idx)), make([]float64, len(idx)), make([]int, len(idx))
 	for i, j := range idx {
@@ -252,10 +261,20 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 				pi = len(q.prD) - 1
 			}
 			q.pPair = append(q.pPair, pi)
+			q.pTT = append(q.pTT, q.pT[k]*(q.pT[k]-1))
 		}
 		q.prGrp = append(q.prGrp, termGroup{l: q.pL[i], start: ps, end: len(q.prD)})
 		i = j
 	}
+	for k := range q.pPair {
+		if k == 0 || q.pPair[k] != q.pPair[k-1] {
+			if q.pPair[k] != len(q.prS) {
+				return nil, fmt.Errorf("power terms of one (l, d) pair are not contiguous")
+			}
+			q.prS = append(q.prS, k)
+		}
+	}
+	q.prS = append(q.prS, len(q.pPair))
 	if len(q.pN) > maxPower || len(q.gN) > maxGauss || len(q.aN) > maxAssoc || len(q.nN) > maxNA {
 		return nil, fmt.Errorf("too many terms for the fixed work arrays")
 	}
@@ -385,24 +404,26 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 	b2, c3 := 0.0, 0.0
 	np := len(q.prD)
 	pp0, pp1, pp2 := tp.pp0[:np], tp.pp1[:np], tp.pp2[:np]
-	clear(pp0)
-	clear(pp1)
-	clear(pp2)
-	for k, n := range q.pN {
-		w := n * ut[q.pTi[k]]
-		t := q.pT[k]
-		j := q.pPair[k]
-		pp0[j] += w
-		pp1[j] += w * t
-		pp2[j] += w * t * (t - 1)
-		switch {
-		case q.pD[k] == 1:
-			b2 += w
-			if q.pL[k] == 1 {
-				c3 -= w // delta exp(-delta) = delta - delta^2 + ...
+	pN, pT, pTT, pTi := q.pN, q.pT[:len(q.pN)], q.pTT[:len(q.pN)], q.pTi[:len(q.pN)]
+	for _, gr := range q.prGrp {
+		for j := gr.start; j < gr.end; j++ {
+			var s0, s1, s2 float64
+			for k := q.prS[j]; k < q.prS[j+1]; k++ {
+				w := pN[k] * ut[pTi[k]]
+				s0 += w
+				s1 += w * pT[k]
+				s2 += w * pTT[k]
 			}
-		case q.pD[k] == 2:
-			c3 += w
+			pp0[j], pp1[j], pp2[j] = s0, s1, s2
+			switch {
+			case q.prD[j] == 1:
+				b2 += s0
+				if gr.l == 1 {
+					c3 -= s0 // delta exp(-delta) = delta - delta^2 + ...
+				}
+			case q.prD[j] == 2:
+				c3 += s0
+			}
 		}
 	}
 	for k, n := range q.gN {

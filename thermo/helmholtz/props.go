@@ -15,9 +15,13 @@ func (f *Fluid) props(tp *tauPart, T, rho float64) (thermo.State, resid) {
 
 // propsR is props with the full residual derivatives r at (T, rho) given.
 func (f *Fluid) propsR(tp *tauPart, T, rho float64, r resid) (thermo.State, resid) {
+	return f.propsRI(tp, T, rho, r, f.q.ideal(tp.tau))
+}
+
+// propsRI is propsR with the ideal-gas part i at tp.tau given as well (both
+// saturated phases share it).
+func (f *Fluid) propsRI(tp *tauPart, T, rho float64, r resid, i ideal) (thermo.State, resid) {
 	delta := rho / f.rhor
-	tau := tp.tau
-	i := f.q.ideal(tau)
 	R := f.r
 	RT := R * T
 	var s thermo.State

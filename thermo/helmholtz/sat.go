@@ -297,8 +297,9 @@ func (f *Fluid) Saturated(T float64) (liquid, vapour thermo.State, err error) {
 func (f *Fluid) satStates(sp satPoint) (liquid, vapour thermo.State) {
 	var tp tauPart
 	f.q.tauPart(f.tr/sp.T, &tp)
-	liquid, _ = f.props(&tp, sp.T, sp.rhoL)
-	vapour, _ = f.props(&tp, sp.T, sp.rhoV)
+	i := f.q.ideal(tp.tau)
+	liquid, _ = f.propsRI(&tp, sp.T, sp.rhoL, f.q.residual(&tp, sp.rhoL/f.rhor, true), i)
+	vapour, _ = f.propsRI(&tp, sp.T, sp.rhoV, f.q.residual(&tp, sp.rhoV/f.rhor, true), i)
 	liquid.P, vapour.P = sp.p, sp.p
 	liquid.Phase, vapour.Phase = thermo.PhaseLiquid, thermo.PhaseVapour
 	return
