@@ -107,14 +107,23 @@ func TestSubscribeRestartResubscribe(t *testing.T) {
 		t.Fatal("not subscribed")
 	}
 	ts1 := time.Date(2026, 12, 1, 9, 0, 0, 123e6, time.UTC)
-	s := waitSample(t, k, "pt101=12.5", 5*time.Second, func() { srv.Set("PT101", 12.5, ts1, ua.StatusOK) },
-		func(s ingest.Sample) bool { return s.Tag == "pt101" && s.Value == 12.5 })
+	// The poke alternates the value: if the first write lands before the
+	// monitored item exists, an unchanged value would never be notified
+	// again (deadband), so a loaded machine could miss it.
+	flip := false
+	s := waitSample(t, k, "pt101=12.5", 15*time.Second, func() {
+		v := 12.5
+		if flip = !flip; !flip {
+			v = 12.4
+		}
+		srv.Set("PT101", v, ts1, ua.StatusOK)
+	}, func(s ingest.Sample) bool { return s.Tag == "pt101" && s.Value == 12.5 })
 	if !s.SourceTime.Equal(ts1) || !s.HasStatus || s.StatusCode != 0 || s.Quality != ingest.Good {
 		t.Fatalf("source timestamp or status lost: %+v", s)
 	}
 	// An uncertain StatusCode (UncertainLastUsableValue 0x40900000, OPC UA
 	// Part 4 status code table) is kept as it is.
-	s = waitSample(t, k, "tt101 uncertain", 5*time.Second, func() { srv.Set("TT101", float32(300.5), ts1, ua.StatusCode(0x40900000)) },
+	s = waitSample(t, k, "tt101 uncertain", 15*time.Second, func() { srv.Set("TT101", float32(300.5), ts1, ua.StatusCode(0x40900000)) },
 		func(s ingest.Sample) bool { return s.Tag == "tt101" && s.Value == 300.5 })
 	if s.StatusCode != 0x40900000 || s.Quality != ingest.Uncertain {
 		t.Fatalf("status: %+v", s)
