@@ -9,12 +9,10 @@ import (
 	"io"
 	"log/slog"
 	"os"
-	"os/signal"
 	"path/filepath"
 	"sort"
 	"strings"
 	"sync"
-	"syscall"
 	"time"
 
 	"github.com/nats-io/nats-server/v2/server"
@@ -161,13 +159,8 @@ func cmdDemo(args []string, stdout, stderr io.Writer) int {
 	}
 	defer nc.Close()
 
-	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGINT, syscall.SIGTERM)
+	ctx, stop := signalContext(*duration)
 	defer stop()
-	if *duration > 0 {
-		var cancel context.CancelFunc
-		ctx, cancel = context.WithTimeout(ctx, *duration)
-		defer cancel()
-	}
 	fmt.Fprintf(stdout, "exergywatch demo: Quillmoor demonstration works (an invented plant), %d machines, %d tags\n", len(plant.Machines()), len(plant.Tags()))
 	fmt.Fprintf(stdout, "%s\n", advisoryNote)
 	fmt.Fprintf(stdout, "Scenario: the air compressor fouls from t+10s (2 points/min), the HP turbine erodes slowly, the gas compressor's discharge\n")

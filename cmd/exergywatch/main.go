@@ -4,10 +4,14 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"os"
+	"os/signal"
 	"sort"
+	"syscall"
+	"time"
 )
 
 // command is one subcommand. run receives the arguments after the
@@ -66,4 +70,15 @@ func dispatch(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	return c.run(args[1:], stdout, stderr)
+}
+
+// signalContext returns a context that ends on SIGINT or SIGTERM, or after
+// d when d > 0. The caller must call the returned stop function.
+func signalContext(d time.Duration) (context.Context, context.CancelFunc) {
+	ctx, stopSignals := signal.NotifyContext(context.Background(), syscall.SIGINT, syscall.SIGTERM)
+	if d <= 0 {
+		return ctx, stopSignals
+	}
+	ctx, cancel := context.WithTimeout(ctx, d)
+	return ctx, func() { cancel(); stopSignals() }
 }

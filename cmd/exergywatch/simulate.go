@@ -9,10 +9,8 @@ import (
 	"io"
 	"net/url"
 	"os"
-	"os/signal"
 	"strconv"
 	"strings"
-	"syscall"
 	"time"
 
 	"github.com/nats-io/nats.go"
@@ -172,13 +170,8 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		return fail(1, "cannot connect to NATS at %s: %v", *natsURL, err)
 	}
 	defer nc.Close()
-	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGINT, syscall.SIGTERM)
+	ctx, stop := signalContext(*duration)
 	defer stop()
-	if *duration > 0 {
-		var cancel context.CancelFunc
-		ctx, cancel = context.WithTimeout(ctx, *duration)
-		defer cancel()
-	}
 	fmt.Fprintf(stdout, "exergywatch simulate: %d machines, %d tags, one reading per tag every %v, scenario %s, publishing on %s.<machine> to %s\n",
 		len(plant.Machines()), len(plant.Tags()), *rate, *scenario, *prefix, nc.ConnectedUrlRedacted())
 	var report func(simStats)
