@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -47,7 +48,7 @@ func cmdCheck(args []string, stdout, stderr io.Writer) int {
 	}
 	cfg, err := config.Load(*file)
 	if err != nil {
-		fmt.Fprintln(stderr, err)
+		reportConfigError(stderr, err)
 		return 2
 	}
 	nTags := len(cfg.TagMap.Tags)
@@ -89,7 +90,7 @@ func cmdRun(args []string, stdout, stderr io.Writer) int {
 	}
 	cfg, err := config.Load(*file)
 	if err != nil {
-		fmt.Fprintln(stderr, err)
+		reportConfigError(stderr, err)
 		return 2
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGINT, syscall.SIGTERM)
@@ -192,4 +193,15 @@ func runDaemon(ctx context.Context, cfg *config.Config, reload <-chan struct{}, 
 		st.reloadTime.SetToCurrentTime()
 		log.Info("configuration reloaded", "machines", len(cur.Machines))
 	}
+}
+
+// reportConfigError prints a configuration error: the list of problems as
+// they are (each names file, line:col and item), anything else with the
+// command's prefix.
+func reportConfigError(w io.Writer, err error) {
+	if errors.Is(err, config.ErrInvalid) {
+		fmt.Fprintln(w, err)
+		return
+	}
+	fmt.Fprintln(w, "exergywatch:", err)
 }
