@@ -335,6 +335,7 @@ func (e *evaluator) observeAlerts(now time.Time, rec *compute.Record, reasons ma
 }
 
 func (e *evaluator) updateTrends(now time.Time, rec *compute.Record, steadyNow bool) {
+	updated := map[string]compute.Quality{}
 	for _, f := range rec.Figures {
 		if f.Quality != compute.QualityGood && f.Quality != compute.QualityUncertain {
 			continue
@@ -344,7 +345,17 @@ func (e *evaluator) updateTrends(now time.Time, rec *compute.Record, steadyNow b
 			t = &trend.EWMA{Tau: e.tau}
 			e.trends[f.Name] = t
 		}
-		_ = t.Add(now, f.Value)
+		if t.Add(now, f.Value) == nil {
+			updated[f.Name] = f.Quality
+		}
+	}
+	// The trend lines of the key figures travel with the records that
+	// update them (good or uncertain values only; transient and bad ones
+	// neither move nor carry the trend), with the quality of that value.
+	for _, name := range trendFigures {
+		if q, ok := updated[name]; ok {
+			rec.Figures = append(rec.Figures, compute.Figure{Name: name + trendSuffix, Value: e.trends[name].Value, Quality: q})
+		}
 	}
 	name := machine.IsentropicEfficiency.RecordName()
 	eta, ok := figureValue(rec, name)
@@ -356,6 +367,17 @@ func (e *evaluator) updateTrends(now time.Time, rec *compute.Record, steadyNow b
 		e.pendingDaily = append(e.pendingDaily, e.dailyRecord(d))
 	}
 }
+
+// trendFigures are the figures whose EWMA trend line is written with every
+// record, as "<name>_trend".
+var trendFigures = []string{
+	machine.IsentropicEfficiency.RecordName(),
+	machine.EntropyGenerationRate.RecordName(),
+	machine.LostWorkRate.RecordName(),
+	config.DegradationPowerFigure,
+}
+
+const trendSuffix = "_trend"
 
 // Daily aggregate series names.
 const (

@@ -1,6 +1,7 @@
 // Package trend keeps the rolling views of a derived figure: an
-// exponentially weighted trend line with a time constant, a time-weighted
-// rolling mean, and daily aggregates in the site's local time zone.
+// exponentially weighted trend line with a time constant and daily
+// aggregates in the site's local time zone. (The time-weighted averaging of
+// the inputs over each evaluation window is done by ingest/align.)
 //
 // Time is a parameter: every Add takes the observation time from the
 // caller, so the same code runs live, in replay and on a fake clock.
@@ -53,68 +54,6 @@ func (e *EWMA) Add(now time.Time, x float64) error {
 	e.Last = now
 	e.N++
 	return nil
-}
-
-// Window is a time-weighted rolling mean over the last Span: each value
-// holds until the next one (zero-order hold), so irregular observations are
-// weighted by how long they held, not by count.
-type Window struct {
-	Span   time.Duration
-	points []point
-}
-
-type point struct {
-	t time.Time
-	v float64
-}
-
-// Add appends x observed at now and drops points older than the span.
-func (w *Window) Add(now time.Time, x float64) error {
-	if math.IsNaN(x) || math.IsInf(x, 0) {
-		return ErrNotFinite
-	}
-	if n := len(w.points); n > 0 && now.Before(w.points[n-1].t) {
-		return ErrOutOfOrder
-	}
-	w.points = append(w.points, point{now, x})
-	// Keep the last point at or before the window start: it holds into it.
-	start := now.Add(-w.Span)
-	cut := 0
-	for cut+1 < len(w.points) && !w.points[cut+1].t.After(start) {
-		cut++
-	}
-	if cut > 0 {
-		w.points = append(w.points[:0], w.points[cut:]...)
-	}
-	return nil
-}
-
-// Mean returns the time-weighted mean over [now-Span, now]; ok is false when
-// the window holds no value.
-func (w *Window) Mean(now time.Time) (mean float64, ok bool) {
-	if len(w.points) == 0 {
-		return 0, false
-	}
-	start := now.Add(-w.Span)
-	var sum, dur float64
-	for i, p := range w.points {
-		from := p.t
-		if from.Before(start) {
-			from = start
-		}
-		to := now
-		if i+1 < len(w.points) {
-			to = w.points[i+1].t
-		}
-		if d := to.Sub(from).Seconds(); d > 0 {
-			sum += d * p.v
-			dur += d
-		}
-	}
-	if dur == 0 {
-		return w.points[len(w.points)-1].v, true
-	}
-	return sum / dur, true
 }
 
 // Day is the aggregate of one local calendar day.

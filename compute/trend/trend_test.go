@@ -25,27 +25,6 @@ func TestEWMAHand(t *testing.T) {
 	}
 }
 
-// Hand computation of a time-weighted mean with zero-order hold over a 60 s
-// window ending at t=100 s: value 10 holds 40..70 (window starts at 40, the
-// point at 30 holds into it), 20 holds 70..90, 30 holds 90..100:
-// (10*30 + 20*20 + 30*10)/60 = 1000/60 = 16.6667. A count-weighted mean would
-// give 20.
-func TestWindowTimeWeighted(t *testing.T) {
-	w := Window{Span: 60 * time.Second}
-	for _, p := range []struct {
-		s int
-		v float64
-	}{{0, 99}, {30, 10}, {70, 20}, {90, 30}} {
-		if err := w.Add(t0.Add(time.Duration(p.s)*time.Second), p.v); err != nil {
-			t.Fatal(err)
-		}
-	}
-	m, ok := w.Mean(t0.Add(100 * time.Second))
-	if !ok || math.Abs(m-1000.0/60) > 1e-12 {
-		t.Fatalf("mean = %v, want %v", m, 1000.0/60)
-	}
-}
-
 // Daylight-saving change in Europe/Berlin on 2026-03-29 (clocks 02:00 -> 03:00;
 // the day has 23 hours, from the EU summer-time rule, common knowledge). A
 // machine steady all day has coverage 1, not 23/24; a machine steady for 11.5 h
