@@ -184,3 +184,76 @@ func (a dayAcc) day() Day {
 	out.SteadyCoverage = a.steadySec / a.end.Sub(a.start).Seconds()
 	return out
 }
+
+// ErrStateMismatch: a saved daily state does not belong to this
+// accumulator's time zone (the site's time zone changed between runs) or is
+// inconsistent; it was not restored.
+var ErrStateMismatch = errors.New("trend: saved daily state does not fit this accumulator")
+
+// DailyState is the restorable content of a Daily: the day in progress
+// (its steady observations and steady seconds so far) and the previous
+// observation, so a daemon restart in mid-day neither loses the morning
+// nor credits the downtime as steady. Values is kept in full because the
+// daily median needs every observation.
+type DailyState struct {
+	// Date is the local date (YYYY-MM-DD) of the day in progress; empty
+	// when no day has started.
+	Date string `json:"date,omitempty"`
+	// Values are the day's steady observations, in the unit of the figure.
+	Values []float64 `json:"values,omitempty"`
+	// SteadySeconds is the steady running time credited to the day, s.
+	SteadySeconds float64 `json:"steady_s,omitempty"`
+	// Last is the time of the previous observation (zero: none) and
+	// LastSteady whether it was steady and running.
+	Last       time.Time `json:"last,omitzero"`
+	LastSteady bool      `json:"last_steady,omitempty"`
+}
+
+// State returns a copy of the accumulator's state.
+func (d *Daily) State() DailyState {
+	var s DailyState
+	if d.hasCur {
+		s.Date = d.cur.date
+		s.Values = append([]float64(nil), d.cur.values...)
+		s.SteadySeconds = d.cur.steadySec
+	}
+	if d.hasLast {
+		s.Last, s.LastSteady = d.lastT, d.lastOK
+	}
+	return s
+}
+
+// Restore replaces the accumulator's state with s. A state whose day does
+// not match its last observation in this time zone, with non-finite or
+// negative content, or with more steady seconds than the day has, is
+// refused with ErrStateMismatch and the accumulator is left unchanged.
+func (d *Daily) Restore(s DailyState) error {
+	var nd Daily
+	nd.loc = d.loc
+	if !s.Last.IsZero() {
+		nd.lastT, nd.lastOK, nd.hasLast = s.Last, s.LastSteady, true
+	}
+	if s.Date != "" {
+		if !nd.hasLast {
+			return fmt.Errorf("%w: day %s has no last observation", ErrStateMismatch, s.Date)
+		}
+		acc := nd.newAcc(s.Last)
+		if acc.date != s.Date {
+			return fmt.Errorf("%w: last observation %s falls on %s in %s, not on the saved day %s",
+				ErrStateMismatch, s.Last.Format(time.RFC3339), acc.date, d.loc, s.Date)
+		}
+		if math.IsNaN(s.SteadySeconds) || s.SteadySeconds < 0 || s.SteadySeconds > acc.end.Sub(acc.start).Seconds() {
+			return fmt.Errorf("%w: %v steady seconds on day %s", ErrStateMismatch, s.SteadySeconds, s.Date)
+		}
+		for _, v := range s.Values {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("%w: non-finite value on day %s", ErrStateMismatch, s.Date)
+			}
+		}
+		acc.values = append([]float64(nil), s.Values...)
+		acc.steadySec = s.SteadySeconds
+		nd.cur, nd.hasCur = acc, true
+	}
+	*d = nd
+	return nil
+}
