@@ -47,6 +47,7 @@ import (
 	"errors"
 	"fmt"
 	"math/bits"
+	"sync"
 	"time"
 
 	"github.com/exergywatch/exergywatch/ingest"
@@ -104,12 +105,14 @@ func ParseFormat(s string) (Format, error) {
 
 // Decoder decodes payloads. It keeps an intern table of tag names so that a
 // steady stream of the same tags allocates no strings. A Decoder is not safe
-// for concurrent use; use one per subscription goroutine.
+// for concurrent use; use one per goroutine (decoders on several goroutines
+// can share one Names table, see ShareNames).
 type Decoder struct {
 	Format Format
 	// Precision of line-protocol timestamps; 0 means time.Nanosecond.
 	Precision time.Duration
 	intern    map[string]string
+	names     *Names // shared intern table; nil: intern is used
 	cache     *[1 << nameCacheBits]string
 	buf       []byte
 	fields    []lpField // line-protocol scratch
@@ -122,6 +125,43 @@ func NewDecoder(f Format) *Decoder {
 }
 
 const maxIntern = 1 << 16
+
+// Names is a tag-name intern table shared by several decoders (safe for
+// concurrent use): decoders running on different goroutines then hand out
+// the very same string for the same tag, so that lookups keyed by the
+// string's address (tagmap's cache) hit whichever decoder read the sample.
+// It holds at most 65536 names; beyond that new names are still returned,
+// just not kept.
+type Names struct {
+	mu sync.RWMutex
+	m  map[string]string
+}
+
+// NewNames returns an empty shared intern table.
+func NewNames() *Names { return &Names{m: make(map[string]string)} }
+
+func (n *Names) get(b []byte) string {
+	n.mu.RLock()
+	s, ok := n.m[string(b)]
+	n.mu.RUnlock()
+	if ok {
+		return s
+	}
+	n.mu.Lock()
+	defer n.mu.Unlock()
+	if s, ok := n.m[string(b)]; ok {
+		return s
+	}
+	s = string(b)
+	if len(n.m) < maxIntern {
+		n.m[s] = s
+	}
+	return s
+}
+
+// ShareNames makes d intern tag names in n instead of its own table. Call
+// it before the first Decode.
+func (d *Decoder) ShareNames(n *Names) { d.names = n }
 
 // nameCacheBits sizes the cache in front of the intern table: a pair of
 // slots holds the last two names whose bytes hashed to it, checked by
@@ -168,6 +208,9 @@ func (d *Decoder) name(b []byte) string {
 }
 
 func (d *Decoder) internName(b []byte) string {
+	if d.names != nil {
+		return d.names.get(b)
+	}
 	if s, ok := d.intern[string(b)]; ok {
 		return s
 	}

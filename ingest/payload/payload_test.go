@@ -6,8 +6,10 @@ import (
 	"fmt"
 	"math"
 	"strconv"
+	"sync"
 	"testing"
 	"time"
+	"unsafe"
 
 	"github.com/exergywatch/exergywatch/ingest"
 )
@@ -319,6 +321,48 @@ func TestDetect(t *testing.T) {
 	} {
 		if got := Detect([]byte(tc.in)); got != tc.want {
 			t.Errorf("Detect(%q) = %v, want %v", tc.in, got, tc.want)
+		}
+	}
+}
+
+// TestSharedNames: decoders sharing a Names table, decoding on their own
+// goroutines, give the same tag the very same string (same address), and
+// the tag text is still right (run with -race to check the sharing).
+func TestSharedNames(t *testing.T) {
+	names := NewNames()
+	const workers, tags = 4, 500
+	got := make([][]string, workers)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			d := NewDecoder(Auto)
+			d.ShareNames(names)
+			for i := 0; i < tags; i++ {
+				k := (i*7 + w*131) % tags // each worker meets the tags in its own order
+				smp, errs := d.Decode([]byte(fmt.Sprintf("m%03d.t%d value=1 1764583200000000000", k/10, k%10)), time.Time{}, nil, nil)
+				if len(errs) != 0 || len(smp) != 1 {
+					t.Errorf("worker %d tag %d: %v %v", w, k, smp, errs)
+					return
+				}
+				if got[w] == nil {
+					got[w] = make([]string, tags)
+				}
+				got[w][k] = smp[0].Tag
+			}
+		}()
+	}
+	wg.Wait()
+	for k := 0; k < tags; k++ {
+		want := fmt.Sprintf("m%03d.t%d", k/10, k%10)
+		for w := 0; w < workers; w++ {
+			if got[w][k] != want {
+				t.Fatalf("worker %d tag %d: got %q, want %q", w, k, got[w][k], want)
+			}
+			if unsafe.StringData(got[w][k]) != unsafe.StringData(got[0][k]) {
+				t.Fatalf("tag %q: worker %d holds another copy than worker 0", want, w)
+			}
 		}
 	}
 }
