@@ -51,6 +51,25 @@ func benchPS(b *testing.B, comp map[string]float64) {
 	}
 }
 
+func benchPH(b *testing.B, comp map[string]float64) {
+	m, err := New(comp)
+	if err != nil {
+		b.Fatal(err)
+	}
+	s2, err := m.Flash(thermo.PT, 7e6, 380) // compressor discharge
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		st, err := m.Flash(thermo.PH, 7e6, s2.H) // discharge state from an energy balance
+		if err != nil {
+			b.Fatal(err)
+		}
+		sinkState = st
+	}
+}
+
 // BenchmarkPT10 is h(p,T) (a full p,T state) of a 10-component gas at 6 MPa, 300 K.
 func BenchmarkPT10(b *testing.B) { benchPT(b, gas10) }
 
@@ -62,6 +81,9 @@ func BenchmarkPS10(b *testing.B) { benchPS(b, gas10) }
 
 // BenchmarkPS11 is the same for the 11-component gas.
 func BenchmarkPS11(b *testing.B) { benchPS(b, gas11) }
+
+// BenchmarkPH10 is the (p,h) flash to the state 7 MPa, 380 K, 10 components.
+func BenchmarkPH10(b *testing.B) { benchPH(b, gas10) }
 
 // BenchmarkNew is the per-mixture set-up of the 11-component gas.
 func BenchmarkNew(b *testing.B) {

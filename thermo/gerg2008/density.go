@@ -34,6 +34,25 @@ const (
 //
 // D0 > 0 is a starting value (a nearby root, for warm starts).
 func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
+	D, err := m.densitySolve(tc, p, D0)
+	if err != nil {
+		return 0, err
+	}
+	P, dPdD := m.pressure(tc, D)
+	if err := m.checkRoot(tc, p, D, P, dPdD); err != nil {
+		return 0, err
+	}
+	return D, nil
+}
+
+// densitySolve is the iteration of density, without the checks of the
+// converged root (checkRoot), which need p and dp/dD at the root: a caller
+// that evaluates the residual part there anyway takes them from it.
+//
+// The steps are Halley's in ln D (d2p/dD2 from the third delta derivative)
+// when its correction to the Newton step is moderate, Newton's otherwise;
+// the convergence test is on the size of the step, as before.
+func (m *Mixture) densitySolve(tc *tauCache, p, D0 float64) (float64, error) {
 	T := tc.T
 	RT := m.rgas * T
 	D := p / RT
@@ -50,9 +69,8 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 		D = 0.5 * hi
 	}
 	unstableHi := false // hi was set by a mechanically unstable point
-	converged := false
 	for it := 0; it < 200; it++ {
-		P, dPdD := m.pressure(tc, D)
+		P, dPdD, d2P := m.pressure3(tc, D, true)
 		if !(dPdD > 0) || math.IsNaN(P) {
 			hi, unstableHi = D, true
 		} else {
@@ -62,11 +80,15 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 			} else {
 				hi, unstableHi = D, false
 			}
-			step := -f / (D * dPdD) // Newton step in ln D
+			g1 := D * dPdD
+			step := -f / g1 // Newton step in ln D
 			if math.Abs(step) < 1e-10 {
 				D *= math.Exp(step) // quadratic convergence: the applied step leaves ~1e-20
-				converged = true
-				break
+				return D, nil
+			}
+			// Halley in y = ln D: g' = D p', g'' = D p' + D^2 p''.
+			if c := 1 + 0.5*step*(g1+D*D*d2P)/g1; c >= 0.5 && c <= 2 {
+				step /= c
 			}
 			step = math.Max(-1, math.Min(1, step))
 			if Dn := D * math.Exp(step); Dn > lo && Dn < hi {
@@ -83,37 +105,41 @@ func (m *Mixture) density(tc *tauCache, p, D0 float64) (float64, error) {
 			D = hi / 2
 		}
 	}
-	if !converged {
-		if unstableHi || hi-lo <= 1e-14*hi {
-			return 0, fmt.Errorf("%s: no gas root at T = %g K, p = %g Pa: the pressure exceeds the gas branch of the isotherm (liquid or two-phase): %w",
-				m.name, T, 1000*p, thermo.ErrPhase)
-		}
-		return 0, fmt.Errorf("%s: density at T = %g K, p = %g Pa: %w", m.name, T, 1000*p, thermo.ErrNoConvergence)
+	if unstableHi || hi-lo <= 1e-14*hi {
+		return 0, fmt.Errorf("%s: no gas root at T = %g K, p = %g Pa: the pressure exceeds the gas branch of the isotherm (liquid or two-phase): %w",
+			m.name, T, 1000*p, thermo.ErrPhase)
 	}
-	P, dPdD := m.pressure(tc, D)
+	return 0, fmt.Errorf("%s: density at T = %g K, p = %g Pa: %w", m.name, T, 1000*p, thermo.ErrNoConvergence)
+}
+
+// checkRoot checks a converged density D (mol/dm3) at T (in tc) and target
+// p in kPa, given P = p(T, D) in kPa and dP/dD there: see density.
+func (m *Mixture) checkRoot(tc *tauCache, p, D, P, dPdD float64) error {
+	T := tc.T
+	RT := m.rgas * T
 	Z := P / (D * RT)
 	if !(dPdD > 0) || math.Abs(P-p) > 1e-9*p {
-		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa is not a stable solution (dp/drho = %g): %w",
+		return fmt.Errorf("%s: density root at T = %g K, p = %g Pa is not a stable solution (dp/drho = %g): %w",
 			m.name, T, 1000*p, dPdD, thermo.ErrPhase)
 	}
 	if !(Z >= zMin && Z <= zMax) {
-		return 0, fmt.Errorf("%s: density root at T = %g K, p = %g Pa has Z = %g against the ideal gas, outside [%g, %g]: %w",
+		return fmt.Errorf("%s: density root at T = %g K, p = %g Pa has Z = %g against the ideal gas, outside [%g, %g]: %w",
 			m.name, T, 1000*p, Z, zMin, zMax, thermo.ErrPhase)
 	}
 	delta := D / m.dr
 	if delta > scanFromDelt && T <= m.tLoop {
 		for k := 1; k < scanPoints; k++ {
 			if _, d := m.pressure(tc, D*float64(k)/scanPoints); !(d > 0) {
-				return 0, fmt.Errorf("%s: at T = %g K, p = %g Pa the only root found (%g kg/m3) lies beyond an unstable part of the isotherm (liquid side): %w",
+				return fmt.Errorf("%s: at T = %g K, p = %g Pa the only root found (%g kg/m3) lies beyond an unstable part of the isotherm (liquid side): %w",
 					m.name, T, 1000*p, D*m.mg, thermo.ErrPhase)
 			}
 		}
 	}
 	if T < m.tLiq && D > m.dLiq {
-		return 0, fmt.Errorf("%s: T = %g K, p = %g Pa gives a liquid-like state (T below the pseudo-critical %.2f K, density %g kg/m3 above the pseudo-critical %g kg/m3): %w",
+		return fmt.Errorf("%s: T = %g K, p = %g Pa gives a liquid-like state (T below the pseudo-critical %.2f K, density %g kg/m3 above the pseudo-critical %g kg/m3): %w",
 			m.name, T, 1000*p, m.tLiq, D*m.mg, m.dLiq*m.mg, thermo.ErrPhase)
 	}
-	return D, nil
+	return nil
 }
 
 // hasLoop reports whether the isotherm T has a mechanically unstable part

@@ -298,6 +298,7 @@ func NewDetail(composition map[string]float64) (*Mixture, error) {
 		return nil, fmt.Errorf("gerg2008: DETAIL: %d merged terms exceed %d", len(ts.list), maxTerms)
 	}
 	m.ts = ts
+	m.prepareIdeal()
 	m.tLoop = m.loopFreeTemperature()
 	return m, nil
 }

@@ -14,21 +14,55 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 	tc.T = T
 	tc.tau = m.tr / T
 	lt := math.Log(tc.tau)
+	ts := m.ts
 	var pw [maxTerms]float64
-	for i, t := range m.ts.tvals {
-		if t == 0 {
-			pw[i] = 1
-		} else {
-			pw[i] = math.Exp(t * lt)
+	if ts.powSplit {
+		// tau^t = tau^floor(t) tau^frac(t): integer powers by binary
+		// splitting (a few roundings, as accurate as exp(t ln tau), whose
+		// argument carries the rounding of ln tau times t), one exponential
+		// per distinct fractional part.
+		var fr [maxFrac]float64
+		for j, f := range ts.fracs {
+			fr[j] = fexp(f * lt)
+		}
+		var ip, in [maxIntPow + 1]float64 // tau^k and tau^-k
+		ip[0], in[0] = 1, 1
+		if ts.maxIntT >= 1 {
+			ip[1], in[1] = tc.tau, 1/tc.tau
+		}
+		for k := 2; k <= ts.maxIntT; k++ {
+			h := k >> 1
+			ip[k] = ip[h] * ip[k-h]
+			in[k] = in[h] * in[k-h]
+		}
+		for i, n := range ts.tInt {
+			v := ip[0]
+			if n >= 0 {
+				v = ip[n&maxIntPow]
+			} else {
+				v = in[(-n)&maxIntPow]
+			}
+			if j := ts.tFrac[i]; j >= 0 {
+				v *= fr[j]
+			}
+			pw[i] = v
+		}
+	} else {
+		for i, t := range ts.tvals {
+			if t == 0 {
+				pw[i] = 1
+			} else {
+				pw[i] = math.Exp(t * lt)
+			}
 		}
 	}
-	for k := range m.ts.list {
-		tm := &m.ts.list[k]
+	for k := range ts.list {
+		tm := &ts.list[k]
 		tc.nt[k] = tm.n * pw[tm.ti]
 	}
 	// B = lim_{delta->0} ar_d / rho_r: the terms with d = 1 at delta = 0.
 	var b float64
-	for _, v := range m.ts.virial {
+	for _, v := range ts.virial {
 		b += tc.nt[v.k] * v.e0
 	}
 	tc.B = b / m.dr
@@ -69,7 +103,7 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 	// Pure-fluid exponential terms: n delta^d tau^t exp(-delta^c).
 	var ec [maxC]float64
 	for _, c := range ts.cList {
-		ec[c] = math.Exp(-dp[c])
+		ec[c] = fexp(-dp[c])
 	}
 	end := ts.nPoly + ts.nExp
 	for k := ts.nPoly; k < end; k++ {
@@ -92,7 +126,7 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 	var ee, s1, s2, e2 [maxDepExp]float64
 	for k, de := range ts.depExp {
 		dm := delta - de.eps
-		ee[k] = math.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		ee[k] = fexp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
 		s1[k] = -2*de.eta*delta*dm - de.beta*delta                            // delta d(exponent)/d delta
 		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta // delta d(s1)/d delta
 		e2[k] = 2 * de.eta * delta * delta
@@ -118,6 +152,13 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 // pressure returns p in kPa and dp/dD in kPa/(mol/dm3) at T (held in tc)
 // and molar density D in mol/dm3. It evaluates only the delta derivatives.
 func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
+	p, dpdD, _ = m.pressure3(tc, D, false)
+	return p, dpdD
+}
+
+// pressure3 is pressure, also returning d2p/dD2 in kPa/(mol/dm3)^2 when
+// second is true (for Halley steps; 0 otherwise).
+func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pdD2 float64) {
 	ts := m.ts
 	delta := D / m.dr
 	var dp [maxDelta + maxC]float64
@@ -127,17 +168,19 @@ func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
 	}
 	list := ts.list
 	nt := &tc.nt
-	var rd, rdd float64
+	var rd, rdd, rddd float64
 	for k := 0; k < ts.nPoly; k++ {
 		tm := &list[k]
 		F := nt[k] * dp[tm.d]
 		g := float64(tm.d)
+		q := g * (g - 1)
 		rd += F * g
-		rdd += F * g * (g - 1)
+		rdd += F * q
+		rddd += F * q * (g - 2)
 	}
 	var ec [maxC]float64
 	for _, c := range ts.cList {
-		ec[c] = math.Exp(-dp[c])
+		ec[c] = fexp(-dp[c])
 	}
 	end := ts.nPoly + ts.nExp
 	for k := ts.nPoly; k < end; k++ {
@@ -146,14 +189,18 @@ func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
 		F := nt[k] * dp[tm.d] * ec[tm.c]
 		c := float64(tm.c)
 		g := float64(tm.d) - c*dc
+		h := c * c * dc
+		q := g*(g-1) - h
 		rd += F * g
-		rdd += F * (g*(g-1) - c*c*dc)
+		rdd += F * q
+		rddd += F * (q*(g-2) - h*(2*g-1+c))
 	}
-	var ee, s1, e2 [maxDepExp]float64
+	var ee, s1, s2, e2 [maxDepExp]float64
 	for k, de := range ts.depExp {
 		dm := delta - de.eps
-		ee[k] = math.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		ee[k] = fexp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
 		s1[k] = -2*de.eta*delta*dm - de.beta*delta
+		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta
 		e2[k] = 2 * de.eta * delta * delta
 	}
 	for k := end; k < len(list); k++ {
@@ -162,11 +209,17 @@ func (m *Mixture) pressure(tc *tauCache, D float64) (p, dpdD float64) {
 		F := nt[k] * dp[tm.d] * ee[e]
 		d := float64(tm.d)
 		g := d + s1[e]
+		q := g*g - d - e2[e]
 		rd += F * g
-		rdd += F * (g*g - d - e2[e])
+		rdd += F * q
+		rddd += F * (q*(g-2) + 2*g*s2[e] - 2*e2[e])
 	}
 	RT := m.rgas * tc.T
-	return D * RT * (1 + rd), RT * (1 + 2*rd + rdd)
+	p, dpdD = D*RT*(1+rd), RT*(1+2*rd+rdd)
+	if second {
+		d2pdD2 = RT * (2*rd + 4*rdd + rddd) / D
+	}
+	return p, dpdD, d2pdD2
 }
 
 const ln2 = math.Ln2
@@ -177,35 +230,34 @@ const ln2 = math.Ln2
 func (m *Mixture) ideal(T, D float64) (a0, a0t, a0tt float64) {
 	lnD := math.Log(D)
 	lnT := math.Log(T)
-	for i := range m.ig {
-		c := &m.ig[i]
-		var h0, h1, h2 float64
-		for k := 0; k < 4; k++ {
-			if c.th[k] <= 0 || c.nh[k] == 0 {
-				continue
-			}
-			u := c.th[k] / T
-			em := math.Exp(-u)
-			em2 := em * em
-			r := 2 * u * em // u/sinh u = r/(1 - em2), u/cosh u = r/(1 + em2)
-			if k%2 == 0 {
-				// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for large u.
-				h0 += c.nh[k] * (u + math.Log1p(-em2) - ln2)
-				h1 += c.nh[k] * u * (1 + em2) / (1 - em2)
-				r /= 1 - em2
-				h2 += c.nh[k] * r * r
-			} else {
-				// -ln cosh u, -u tanh u, (u/cosh u)^2.
-				h0 -= c.nh[k] * (u + math.Log1p(em2) - ln2)
-				h1 -= c.nh[k] * u * (1 - em2) / (1 + em2)
-				r /= 1 + em2
-				h2 += c.nh[k] * r * r
-			}
+	iT := 1 / T
+	var h0, h1, h2 float64
+	for i := range m.hyp {
+		c := &m.hyp[i]
+		u := c.th * iT
+		em := fexp(-u)
+		em2 := em * em
+		if !c.cosh {
+			// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for
+			// large u: u/sinh u = 2 u em/(1 - em2).
+			q := 1 / (1 - em2)
+			h0 += c.coef * (u + math.Log1p(-em2) - ln2)
+			h1 += c.coef * u * (1 + em2) * q
+			r := 2 * u * em * q
+			h2 += c.coef * r * r
+		} else {
+			// -ln cosh u, -u tanh u, (u/cosh u)^2.
+			q := 1 / (1 + em2)
+			h0 -= c.coef * (u + math.Log1p(em2) - ln2)
+			h1 -= c.coef * u * (1 - em2) * q
+			r := 2 * u * em * q
+			h2 += c.coef * r * r
 		}
-		a0 += c.x * (lnD + c.lnx + c.N1 + c.N2/T - c.N3*lnT + h0)
-		a0t += c.x * (c.N3 + c.N2/T + h1)
-		a0tt -= c.x * (c.N3 + h2)
 	}
+	n2T := m.igN2 * iT
+	a0 = m.igSx*lnD + m.igC0 + n2T - m.igN3*lnT + h0
+	a0t = m.igN3 + n2T + h1
+	a0tt = -(m.igN3 + h2)
 	return a0, a0t, a0tt
 }
 
@@ -235,8 +287,12 @@ type Properties struct {
 // props evaluates every property at T (in tc) and D mol/dm3, following
 // NIST's PropertiesGERG (GERG2008.cpp) in its units, then converts to SI.
 func (m *Mixture) props(tc *tauCache, D float64) Properties {
+	return m.propsR(tc, D, m.residual(tc, D/m.dr))
+}
+
+// propsR is props with the residual part r at (tc.T, D) given.
+func (m *Mixture) propsR(tc *tauCache, D float64, r resid) Properties {
 	T := tc.T
-	r := m.residual(tc, D/m.dr)
 	a0, a0t, a0tt := m.ideal(T, D)
 	R := m.rgas
 	RT := R * T

@@ -66,11 +66,19 @@ func (m *Mixture) propertiesPT(p, T, D0 float64) (Properties, error) {
 	}
 	var tc tauCache
 	m.setTau(&tc, T)
-	D, err := m.density(&tc, p/1000, D0/1000)
+	pk := p / 1000
+	D, err := m.densitySolve(&tc, pk, D0/1000)
 	if err != nil {
 		return Properties{}, err
 	}
-	pr := m.props(&tc, D)
+	// The residual part at the root gives both the checks of density and
+	// the properties.
+	r := m.residual(&tc, D/m.dr)
+	RT := m.rgas * T
+	if err := m.checkRoot(&tc, pk, D, D*RT*(1+r.d), RT*(1+2*r.d+r.dd)); err != nil {
+		return Properties{}, err
+	}
+	pr := m.propsR(&tc, D, r)
 	if !finiteProps(&pr) {
 		return Properties{}, fmt.Errorf("%s: non-finite property at T = %g K, p = %g Pa: %w", m.name, T, p, thermo.ErrNoConvergence)
 	}
@@ -221,23 +229,40 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 		quantity, unit = "s", "J/(kg K)"
 	}
 	// f(T) = property(T) - target, increasing in T; slope cp or cp/T.
-	var lastD float64 // warm start: the density at the previous temperature, scaled
-	var lastT float64
+	// Each state is solved from the previous one: its density moved along
+	// the isobar's tangent, (dD/dT)_p = -(dp/dT)_D / (dp/dD)_T.
+	var last Properties // the previous state (last.T = 0: none)
 	eval := func(T float64) (Properties, float64, float64, error) {
 		D0 := 0.0
-		if lastD > 0 {
-			D0 = lastD * lastT / T
+		if last.T > 0 {
+			D0 = last.D * last.T / T
+			if g := last.D - last.DPDT/last.DPDD*(T-last.T); g > 0.5*last.D && g < 2*last.D {
+				D0 = g
+			}
 		}
 		pr, err := m.propertiesPT(p, T, D0)
 		if err != nil {
 			return pr, 0, 0, err
 		}
-		lastD, lastT = pr.D, T
+		last = pr
 		if pair == thermo.PH {
 			return pr, pr.H/M - target, pr.Cp / M, nil
 		}
 		return pr, pr.S/M - target, pr.Cp / M / T, nil
 	}
+	// The steps are taken in x = T (PH) or x = ln T (PS), in which the
+	// slope of f is cp for both: Newton's step, or Halley's with the
+	// curvature dcp/dx from the previous iterate (a secant of cp) once there
+	// is one and the correction is moderate. The convergence test is the
+	// Newton step in T, as the doc of Flash says.
+	xOf := func(T float64) float64 {
+		if pair == thermo.PS {
+			return math.Log(T)
+		}
+		return T
+	}
+	var xPrev, cpPrev float64
+	havePrev := false
 	lo, hi := m.tMin, m.tMax
 	loPhase := false // lo is a temperature where no gas state exists
 	var hiSeen, loSeen bool
@@ -249,6 +274,7 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 				return pr, err
 			}
 			lo, loPhase, loSeen = T, true, true
+			havePrev = false
 		} else {
 			if f > 0 {
 				hi, hiSeen = T, true
@@ -261,12 +287,24 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 				// root, 1e-11 relative, well inside the 1e-9 promised.
 				return pr, nil
 			}
-			Tn := T + dT
+			cp := pr.Cp / M
+			x := xOf(T)
+			dx := -f / cp
+			if havePrev && x != xPrev {
+				if c := 1 - 0.5*dx*(cp-cpPrev)/(x-xPrev)/cp; c >= 0.5 && c <= 2 {
+					dx /= c
+				}
+			}
+			xPrev, cpPrev, havePrev = x, cp, true
+			Tn := T + dx
+			if pair == thermo.PS {
+				Tn = T * math.Exp(dx)
+			}
 			if Tn > lo && Tn < hi {
 				T = Tn
 				continue
 			}
-			// The Newton step leaves the bracket: test the bounds of the range.
+			// The step leaves the bracket: test the bounds of the range.
 			if Tn >= hi && !hiSeen && hi == m.tMax && T != m.tMax {
 				T = m.tMax
 				continue

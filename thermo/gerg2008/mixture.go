@@ -32,6 +32,17 @@ type terms struct {
 	usedC  [maxC]bool
 	cList  []int     // the c values in use
 	tvals  []float64 // the distinct tau exponents t
+	// tau^t for t in tvals is tau^floor(t) (an integer power, tInt) times
+	// tau^(t - floor(t)) (one exponential per distinct fractional part,
+	// fracs[tFrac], -1 for none): the GERG-2008 exponents are multiples of
+	// 1/40 with 23 distinct fractional parts among 72 values. powSplit is
+	// false when an exponent falls outside the fixed bounds (then every
+	// tau^t is exp(t ln tau)).
+	tInt     []int
+	tFrac    []int
+	fracs    []float64
+	maxIntT  int // largest |floor(t)|
+	powSplit bool
 	// virial lists the terms with d = 1 and their exponential factor at
 	// delta = 0, which give the second virial coefficient.
 	virial []struct {
@@ -66,6 +77,30 @@ func (ts *terms) indexT() {
 			ts.tvals = append(ts.tvals, t)
 		}
 		ts.list[k].ti = i
+	}
+	ts.powSplit = true
+	fi := map[float64]int{}
+	for _, t := range ts.tvals {
+		n := math.Floor(t)
+		f := t - n
+		if math.Abs(n) > maxIntPow {
+			ts.powSplit = false
+		}
+		ts.tInt = append(ts.tInt, int(n))
+		ts.maxIntT = max(ts.maxIntT, int(math.Abs(n)))
+		j := -1
+		if f != 0 {
+			var ok bool
+			if j, ok = fi[f]; !ok {
+				j = len(ts.fracs)
+				fi[f] = j
+				ts.fracs = append(ts.fracs, f)
+			}
+		}
+		ts.tFrac = append(ts.tFrac, j)
+	}
+	if len(ts.fracs) > maxFrac {
+		ts.powSplit = false
 	}
 }
 
@@ -178,7 +213,12 @@ type Mixture struct {
 	dr   float64        // reducing density, mol/dm3
 	ts   *terms
 	ig   []idealComp
-	name string
+	// The ideal-gas part flattened by prepareIdeal: sum x_i, sum x_i (ln x_i
+	// + N1_i), sum x_i N2_i, sum x_i N3_i and the hyperbolic terms with
+	// x_i n_ik as coefficient.
+	igSx, igC0, igN2, igN3 float64
+	hyp                    []hypTerm
+	name                   string
 	// checkStability makes Flash run Stable on every result (WithStabilityCheck).
 	checkStability bool
 	// tLoop (K): above it no isotherm has an unstable part (loopFreeTemperature).
@@ -228,9 +268,36 @@ func New(composition map[string]float64) (*Mixture, error) {
 		c := &g.comps[i]
 		m.ig = append(m.ig, idealComp{x: x[i], lnx: math.Log(x[i]), N1: c.N1, N2: c.N2, N3: c.N3, nh: c.nh, th: c.th})
 	}
+	m.prepareIdeal()
 	m.tLiq, m.dLiq = m.tr, m.dr
 	m.tLoop = m.loopFreeTemperature()
 	return m, nil
+}
+
+// hypTerm is one hyperbolic ideal-gas term of one component: coef ln|sinh(th/T)|
+// (cosh false) or -coef ln cosh(th/T), coef = x_i n_ik.
+type hypTerm struct {
+	coef, th float64
+	cosh     bool
+}
+
+// prepareIdeal sums the composition-only parts of the ideal-gas terms of
+// m.ig once, so that ideal loops over the hyperbolic terms only.
+func (m *Mixture) prepareIdeal() {
+	m.igSx, m.igC0, m.igN2, m.igN3, m.hyp = 0, 0, 0, 0, nil
+	for i := range m.ig {
+		c := &m.ig[i]
+		m.igSx += c.x
+		m.igC0 += c.x * (c.lnx + c.N1)
+		m.igN2 += c.x * c.N2
+		m.igN3 += c.x * c.N3
+		for k := 0; k < 4; k++ {
+			if c.th[k] <= 0 || c.nh[k] == 0 {
+				continue
+			}
+			m.hyp = append(m.hyp, hypTerm{coef: c.x * c.nh[k], th: c.th[k], cosh: k%2 == 1})
+		}
+	}
 }
 
 // reducing evaluates the GERG-2008 reducing functions (Kunz & Wagner 2012,
