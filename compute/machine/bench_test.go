@@ -3,6 +3,7 @@ package machine
 import (
 	"testing"
 
+	"github.com/exergywatch/exergywatch/thermo/fluids"
 	"github.com/exergywatch/exergywatch/thermo/idealgas"
 	"github.com/exergywatch/exergywatch/thermo/if97"
 )
@@ -55,4 +56,46 @@ func BenchmarkSteamTurbineWetEnergyBalanceUncertainty(b *testing.B) {
 	benchEval(b, &Spec{Kind: Turbine, Fluid: if97.Water{}, Inlet: ByPT, Outlet: ByEnergyBalance, Power: ShaftPower,
 		Uncertainty: Uncertainty{T1: Std{Abs: 0.5}, P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, MassFlow: Std{Rel: 0.01}, Power: Std{Rel: 0.005}}},
 		&Inputs{P1: 0.8e6, T1: 600, P2: 5e3, MassFlow: 40, ShaftPower: 30.9e6})
+}
+
+// BenchmarkSensitivityReuse: one evaluation with uncertainty per op, fresh
+// (Evaluate: sensitivities by central differences every time) and with a
+// per-machine Sensitivities cache (EvaluateWith), cycling through 240
+// noisy, slowly drifting samples of each demo machine (trajCases: the demo
+// plant's noise, its configured instrument classes). reused/op is the
+// share of evaluations that reused sensitivities.
+//
+//	go test -run XXX -bench SensitivityReuse -count 5 ./compute/machine/
+func BenchmarkSensitivityReuse(b *testing.B) {
+	for _, c := range trajCases(b) {
+		spec := c.spec
+		fl, err := fluids.New(c.fluid, stagedComposition(c.fluid))
+		if err != nil {
+			b.Fatal(err)
+		}
+		spec.Fluid = fl
+		traj := c.trajectory(b, fl, 240, 1)
+		for _, mode := range []string{"fresh", "reuse"} {
+			b.Run(c.name+"/"+mode, func(b *testing.B) {
+				var cache *Sensitivities
+				if mode == "reuse" {
+					cache = &Sensitivities{}
+				}
+				b.ReportAllocs()
+				i := 0
+				for b.Loop() {
+					if _, err := EvaluateWith(&spec, &traj[i], cache); err != nil {
+						b.Fatal(err)
+					}
+					if i++; i == len(traj) {
+						i = 0
+					}
+				}
+				if cache != nil {
+					f, r := cache.Counts()
+					b.ReportMetric(float64(r)/float64(f+r), "reused/op")
+				}
+			})
+		}
+	}
 }

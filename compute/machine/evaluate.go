@@ -65,11 +65,21 @@ func Evaluate(spec *Spec, in *Inputs) (*Result, error) {
 // propagation is tested against). flashes is the number of property-model
 // flashes run (the saturation checks not counted).
 func evaluate(spec *Spec, in *Inputs, full bool) (res *Result, flashes int, err error) {
-	res, err = evaluateR(spec, in, full, &flashes)
+	res, err = evaluateR(spec, in, full, nil, &flashes)
 	return res, flashes, err
 }
 
-func evaluateR(spec *Spec, in *Inputs, full bool, flashes *int) (*Result, error) {
+// evaluateR is the evaluation; cache (nil: none) supplies and keeps reused
+// sensitivities (see Sensitivities). An error forgets the cache's anchor.
+func evaluateR(spec *Spec, in *Inputs, full bool, cache *Sensitivities, flashes *int) (*Result, error) {
+	res, err := evaluateC(spec, in, full, cache, flashes)
+	if err != nil && cache != nil {
+		cache.Reset()
+	}
+	return res, err
+}
+
+func evaluateC(spec *Spec, in *Inputs, full bool, cache *Sensitivities, flashes *int) (*Result, error) {
 	c, err := resolve(spec)
 	if err != nil {
 		return nil, err
@@ -126,21 +136,49 @@ func evaluateR(spec *Spec, in *Inputs, full bool, flashes *int) (*Result, error)
 		if c.Uncertainty.CorrP != 0 && u[iP1] > 0 && u[iP2] > 0 {
 			corr = append(corr, uncert.Correlation{I: iP1, J: iP2, R: c.Uncertainty.CorrP})
 		}
-		var tmp evalOut
-		f := func(xs, y []float64) error {
-			if err := c.run((*[nIn]float64)(xs), &tmp); err != nil {
-				return err
+		var p *propagation
+		if cache != nil {
+			if p = cache.reuse(spec, &x, &u, corr, &o, &defined, nearIn || nearOut); p != nil {
+				cache.reused++
+				res.SensitivityAge = cache.a.age
 			}
-			copy(y, tmp.fig[:])
-			return nil
 		}
-		pr, err := uncert.PropagateFrom(f, o.fig[:], x[:], u[:], corr)
-		if err != nil {
-			return nil, fmt.Errorf("uncertainty propagation: %w", err)
+		if p == nil {
+			// clean: every perturbed calculation ran, in the same phases,
+			// polytropic method and finite figures as the nominal one.
+			clean := true
+			var tmp evalOut
+			f := func(xs, y []float64) error {
+				if err := c.run((*[nIn]float64)(xs), &tmp); err != nil {
+					clean = false
+					return err
+				}
+				if tmp.poly != o.poly || tmp.in.Phase != o.in.Phase || tmp.out.Phase != o.out.Phase || tmp.iso.Phase != o.iso.Phase {
+					clean = false
+				}
+				for k := range tmp.fig {
+					if finite(tmp.fig[k]) != finite(o.fig[k]) {
+						clean = false
+					}
+				}
+				copy(y, tmp.fig[:])
+				return nil
+			}
+			pr, err := uncert.PropagateFrom(f, o.fig[:], x[:], u[:], corr)
+			if err != nil {
+				return nil, fmt.Errorf("uncertainty propagation: %w", err)
+			}
+			if p, err = propagationFrom(pr); err != nil {
+				return nil, err
+			}
+			if cache != nil {
+				cache.fresh++
+				cache.store(spec, &x, &u, &o, &defined, p, clean && !nearIn && !nearOut)
+			}
 		}
-		res.prop = pr
+		res.prop = p
 		for id := range NumFigures {
-			if u95, ok := pr.U95(int(id)); ok && res.Figures[id].Defined {
+			if u95, ok := p.u95(id); ok && res.Figures[id].Defined {
 				res.Figures[id].U95, res.Figures[id].HasU95 = u95, true
 			}
 		}

@@ -5,7 +5,6 @@ import (
 	"time"
 
 	"github.com/exergywatch/exergywatch/compute"
-	"github.com/exergywatch/exergywatch/compute/uncert"
 	"github.com/exergywatch/exergywatch/thermo"
 )
 
@@ -174,8 +173,16 @@ type Result struct {
 	Reasons []string
 	// Notes explain the reasons for a person (one sentence each).
 	Notes []string
+	// SensitivityAge says where the sensitivity coefficients behind the
+	// U95s (and Sensitivity) come from, in evaluations: 0 when they were
+	// found by central differences at these inputs (always so from
+	// Evaluate); n > 0 when EvaluateWith reused those of an anchor
+	// evaluation n evaluations back at a nearby operating point (see
+	// Sensitivities). The U95s use the current inputs' uncertainties
+	// either way.
+	SensitivityAge int
 	// prop is the propagation result; nil without uncertainty.
-	prop *uncert.Result
+	prop *propagation
 }
 
 // Figure returns one figure.
@@ -185,14 +192,15 @@ func (r *Result) Figure(id FigureID) Figure { return r.Figures[id] }
 // input named as in InputNames ("p1", "T1", "h1", "x1", "p2", "T2", "x2",
 // "flow", "power", "heat", "drive_efficiency"), in SI units (e.g. 1/K for an
 // efficiency and a temperature). ok is false when the input had no
-// uncertainty or no propagation was done.
+// uncertainty or no propagation was done. With SensitivityAge > 0 it is
+// the reused coefficient of the anchor evaluation.
 func (r *Result) Sensitivity(id FigureID, input string) (float64, bool) {
 	if r.prop == nil {
 		return 0, false
 	}
 	for i, n := range inputNames {
 		if n == input {
-			c := r.prop.Sensitivity(int(id), i)
+			c := r.prop.sens[id][i]
 			if c == 0 || math.IsNaN(c) {
 				return 0, false
 			}

@@ -110,7 +110,7 @@ func (c *resolved) grade(res *Result, in *Inputs, wantU, nearIn, nearOut bool) {
 			set(id, compute.QualityBad, ReasonUncertaintyAboveLimit)
 			note := fmt.Sprintf("%s U95 = %.3f exceeds the limit %.3f: the method is unusable with these instruments", id, f.U95, c.EfficiencyU95Limit)
 			if res.prop != nil {
-				if d := res.prop.Dominant(int(id)); d >= 0 {
+				if d := res.prop.dominant(id); d >= 0 {
 					note += fmt.Sprintf(" (dominant input: %s)", inputLabels[d])
 				}
 			}

@@ -75,16 +75,20 @@ func stagedCases() []stagedCase {
 
 func stagedFluid(t *testing.T, name string) thermo.Fluid {
 	t.Helper()
-	var comp map[string]float64
-	if name == "natural-gas" {
-		// The demo plant's gas (cmd/exergywatch/demo.yaml).
-		comp = map[string]float64{"CH4": 0.90, "C2H6": 0.05, "C3H8": 0.01, "N2": 0.02, "CO2": 0.02}
-	}
-	fl, err := fluids.New(name, comp)
+	fl, err := fluids.New(name, stagedComposition(name))
 	if err != nil {
 		t.Fatal(err)
 	}
 	return fl
+}
+
+// stagedComposition is the composition a fluid name needs (nil if none).
+func stagedComposition(name string) map[string]float64 {
+	if name == "natural-gas" {
+		// The demo plant's gas (cmd/exergywatch/demo.yaml).
+		return map[string]float64{"CH4": 0.90, "C2H6": 0.05, "C3H8": 0.01, "N2": 0.02, "CO2": 0.02}
+	}
+	return nil
 }
 
 // minimalFlashes is the number of flashes the staged propagation needs:

@@ -1,0 +1,347 @@
+package machine
+
+import (
+	"fmt"
+	"math"
+	"reflect"
+
+	"github.com/exergywatch/exergywatch/compute/uncert"
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+// Defaults of Sensitivities (see its doc for the reasoning and the
+// measurements behind them).
+const (
+	// DefaultReuseFraction is α: sensitivities are reused while every
+	// uncertain input is within α·u_i(x) of the anchor.
+	DefaultReuseFraction = 1.0
+	// DefaultMaxAge is the number of evaluations an anchor may serve before
+	// the sensitivities are computed afresh (at 1-minute ticks, an hour).
+	DefaultMaxAge = 60
+	// DefaultFixedInputTolerance is the relative move (fraction of |x|)
+	// allowed for a used input that has no uncertainty (its sensitivities
+	// are not needed, but the others depend on it: a rate figure's scale
+	// with the mass flow, for example).
+	DefaultFixedInputTolerance = 1e-3
+)
+
+// Sensitivities carries the sensitivity coefficients c_ki = ∂y_k/∂x_i of
+// one machine from one evaluation to the next, so that consecutive
+// evaluations at nearly the same operating point need not run the 2 flashes
+// (or more) per uncertain input of the central differences again. Pass the
+// same *Sensitivities to EvaluateWith for every evaluation of one machine;
+// the zero value is ready to use (defaults below). It is not safe for
+// concurrent use.
+//
+// What is reused and what is not. Figure values are always computed afresh
+// from the current inputs (the three nominal flashes), and so are the
+// standard uncertainties u_i of the current inputs (relative uncertainties
+// and the IEC tolerance classes depend on the reading). Only the c_ki are
+// taken from the anchor, the last evaluation whose sensitivities were found
+// by central differences on the same calculation (uncert.PropagateFrom).
+// The combined standard uncertainty is then GUM eq. 16 (JCGM 100:2008
+// §5.2.2) with the anchor's c and the current u:
+//
+//	u_c²(y_k) = Σ_i (c_ki u_i)² + 2 Σ_{i<j} c_ki c_kj r_ij u_i u_j
+//
+// and the variance contributions (c_ki u_i)² that name the dominant input
+// are those of the current u as well.
+//
+// Why this is sound. The first-order law of propagation (GUM §5.1.2) is
+// only valid where the model is close to linear over the inputs'
+// uncertainty intervals. Across ±u_j a sensitivity changes by
+// (∂²f/∂x_i∂x_j)·u_j, built from the same second derivatives whose terms
+// the law neglects (the note to GUM §5.1.2 lists them); where the law
+// holds, that change is small against c_i. An anchor at most α·u_j away in
+// every input therefore has sensitivities that differ from the current
+// ones by about α times that relative nonlinearity. For the ratio-type figures here (efficiencies,
+// the power mismatch, specific work from power/flow) that is about α times
+// the relative uncertainty of the inputs in a denominator, i.e. about α
+// percent. Measured along noisy and drifting trajectories of a steam
+// turbine, a wet-exhaust turbine, air, natural-gas and ammonia compressors
+// (TestSensitivityReuseAlongTrajectories), the largest deviation of a
+// reused U95 from the fresh one is 1.1 % for α = 0.5, 2.0 % for α = 1 and
+// 3.5 % for α = 2: below the two significant digits to which an
+// uncertainty is stated (GUM §7.2.6) for most values, and far below the
+// reliability of the instrument uncertainties themselves (GUM §G.4.2).
+//
+// When the sensitivities are found afresh instead:
+//   - the first evaluation, and any after Reset or after an error;
+//   - another Spec (or the Spec changed);
+//   - an uncertain input moved by more than α·u_i(x) from the anchor, a
+//     used input without uncertainty by more than FixedInputTolerance
+//     relative, or the set of uncertain inputs changed;
+//   - a state changed phase (inlet, outlet, isentropic outlet), the
+//     polytropic method changed (ideal-gas exact vs Schultz), the set of
+//     defined figures or of computable (finite) figures changed;
+//   - a (p,T) state is flagged near saturation;
+//   - the anchor has served MaxAge evaluations, so a slow drift always gets
+//     fresh sensitivities;
+//   - a reused U95 would not be finite.
+//
+// An evaluation only becomes an anchor when its central differences were
+// clean: every perturbed calculation succeeded with the same phases, the
+// same polytropic method and the same finite figures as the nominal one,
+// and every figure that has a value has all its sensitivities. Otherwise
+// the next evaluation is fresh as well.
+type Sensitivities struct {
+	// ReuseFraction is α, the largest move of an uncertain input from the
+	// anchor, as a multiple of its current standard uncertainty u_i(x), at
+	// which sensitivities are reused. 0 selects DefaultReuseFraction; a
+	// negative value turns reuse off (every evaluation fresh).
+	ReuseFraction float64
+	// MaxAge is the largest number of evaluations one anchor serves. 0
+	// selects DefaultMaxAge.
+	MaxAge int
+	// FixedInputTolerance is the largest relative move (fraction of |x|)
+	// of a used input that has no uncertainty. 0 selects
+	// DefaultFixedInputTolerance.
+	FixedInputTolerance float64
+
+	a      anchor
+	fresh  int
+	reused int
+}
+
+// anchor is the evaluation whose sensitivities are reused.
+type anchor struct {
+	valid   bool
+	spec    *Spec
+	specVal Spec
+	x       [nIn]float64
+	uPos    [nIn]bool
+	sens    [NumFigures][nIn]float64
+	finite  [NumFigures]bool
+	defined [NumFigures]bool
+	phase   [nPorts]thermo.Phase
+	poly    PolyMethod
+	age     int
+}
+
+// Reset forgets the anchor: the next evaluation computes its sensitivities
+// afresh. The counts are kept.
+func (s *Sensitivities) Reset() { s.a = anchor{} }
+
+// Counts returns how many evaluations with uncertainty computed their
+// sensitivities afresh and how many reused them.
+func (s *Sensitivities) Counts() (fresh, reused int) { return s.fresh, s.reused }
+
+func (s *Sensitivities) alpha() float64 {
+	if s.ReuseFraction == 0 {
+		return DefaultReuseFraction
+	}
+	return s.ReuseFraction
+}
+
+func (s *Sensitivities) maxAge() int {
+	if s.MaxAge <= 0 {
+		return DefaultMaxAge
+	}
+	return s.MaxAge
+}
+
+func (s *Sensitivities) fixedTol() float64 {
+	if !(s.FixedInputTolerance > 0) {
+		return DefaultFixedInputTolerance
+	}
+	return s.FixedInputTolerance
+}
+
+// EvaluateWith is Evaluate with sensitivity coefficients reused from an
+// earlier evaluation of the same machine at a nearby operating point (see
+// Sensitivities). Figure values, states, quality and reasons are those
+// Evaluate gives for the same inputs; only the U95s (and Sensitivity, the
+// dominant-input notes) may come from the anchor's sensitivities, which
+// Result.SensitivityAge tells. Errors are Evaluate's; an error also forgets
+// the anchor. A nil cache makes it Evaluate.
+func EvaluateWith(spec *Spec, in *Inputs, cache *Sensitivities) (*Result, error) {
+	var flashes int
+	return evaluateR(spec, in, false, cache, &flashes)
+}
+
+// evaluateWith is EvaluateWith returning the number of flashes (tests).
+func evaluateWith(spec *Spec, in *Inputs, cache *Sensitivities) (*Result, int, error) {
+	var flashes int
+	res, err := evaluateR(spec, in, false, cache, &flashes)
+	return res, flashes, err
+}
+
+// sameSpec reports whether the anchor was made for this spec: an equal
+// value with the same fluid model (compared as interface values; a model of
+// a type that cannot be compared only through the same *Spec).
+func (a *anchor) sameSpec(s *Spec) (same bool) {
+	x, y := a.specVal, *s
+	fx, fy := x.Fluid, y.Fluid
+	x.Fluid, y.Fluid = nil, nil
+	if x != y {
+		return false
+	}
+	tx := reflect.TypeOf(fx)
+	if tx == nil || tx != reflect.TypeOf(fy) {
+		return false
+	}
+	if !tx.Comparable() {
+		return a.spec == s
+	}
+	// A comparable type may still hold an incomparable value (an interface
+	// field holding a slice): == panics then.
+	defer func() {
+		if recover() != nil {
+			same = a.spec == s
+		}
+	}()
+	return fx == fy
+}
+
+// reuse returns the propagation from the anchor's sensitivities and the
+// current uncertainties, or nil when they must be found afresh.
+func (s *Sensitivities) reuse(spec *Spec, x, u *[nIn]float64, corr []uncert.Correlation, o *evalOut, defined *[NumFigures]bool, near bool) *propagation {
+	a := &s.a
+	alpha := s.alpha()
+	if !a.valid || alpha < 0 || near || a.age+1 > s.maxAge() || !a.sameSpec(spec) {
+		return nil
+	}
+	if *defined != a.defined || o.poly != a.poly ||
+		o.in.Phase != a.phase[portIn] || o.out.Phase != a.phase[portOut] || o.iso.Phase != a.phase[portIso] {
+		return nil
+	}
+	for k := range NumFigures {
+		if finite(o.fig[k]) != a.finite[k] {
+			return nil
+		}
+	}
+	tol := s.fixedTol()
+	for i := range nIn {
+		if !finite(u[i]) || u[i] < 0 || (u[i] > 0) != a.uPos[i] {
+			return nil
+		}
+		d := math.Abs(x[i] - a.x[i])
+		if u[i] > 0 {
+			if !(d <= alpha*u[i]) {
+				return nil
+			}
+		} else if !(d <= tol*math.Abs(a.x[i])) {
+			return nil
+		}
+	}
+	p := &propagation{sens: a.sens}
+	for k := range NumFigures {
+		p.ok[k] = a.finite[k]
+	}
+	p.combine(u, corr)
+	for k := range NumFigures {
+		if p.ok[k] && !finite(p.u[k]) {
+			return nil
+		}
+	}
+	a.age++
+	return p
+}
+
+// store makes this fresh evaluation the anchor when its central
+// differences were clean, and forgets the anchor otherwise.
+func (s *Sensitivities) store(spec *Spec, x, u *[nIn]float64, o *evalOut, defined *[NumFigures]bool, p *propagation, clean bool) {
+	s.a = anchor{}
+	if !clean {
+		return
+	}
+	a := anchor{valid: true, spec: spec, specVal: *spec, x: *x, sens: p.sens, defined: *defined, poly: o.poly,
+		phase: [nPorts]thermo.Phase{o.in.Phase, o.out.Phase, o.iso.Phase}}
+	for i := range nIn {
+		a.uPos[i] = u[i] > 0
+	}
+	for k := range NumFigures {
+		a.finite[k] = finite(o.fig[k])
+		if p.ok[k] != a.finite[k] {
+			return // a figure with a value but without all its sensitivities
+		}
+		if !a.finite[k] {
+			continue
+		}
+		for i := range nIn {
+			if !finite(p.sens[k][i]) {
+				return
+			}
+		}
+	}
+	s.a = a
+}
+
+// propagation is the uncertainty of every figure of one evaluation: from
+// uncert.PropagateFrom (fresh) or from reused sensitivities.
+type propagation struct {
+	// sens[k][i] is c_ki = ∂y_k/∂x_i, in the units of figure k per unit of
+	// input i (SI); 0 for inputs without uncertainty.
+	sens [NumFigures][nIn]float64
+	// vars[k][i] is (c_ki u_i)², the contribution of input i to the
+	// variance of figure k without the correlation terms.
+	vars [NumFigures][nIn]float64
+	// u is the combined standard uncertainty u_c (k = 1); valid where ok.
+	u  [NumFigures]float64
+	ok [NumFigures]bool
+}
+
+// propagationFrom copies a fresh propagation of the NumFigures outputs
+// over the nIn inputs.
+func propagationFrom(pr *uncert.Result) (*propagation, error) {
+	if len(pr.U) != int(NumFigures) || len(pr.Sens) != int(NumFigures)*nIn || len(pr.Var) != len(pr.Sens) {
+		return nil, fmt.Errorf("uncertainty propagation: %d outputs, %d sensitivities, want %d and %d", len(pr.U), len(pr.Sens), NumFigures, int(NumFigures)*nIn)
+	}
+	p := &propagation{}
+	for k := range NumFigures {
+		p.u[k], p.ok[k] = pr.U[k], pr.OK[k]
+		copy(p.sens[k][:], pr.Sens[int(k)*nIn:])
+		copy(p.vars[k][:], pr.Var[int(k)*nIn:])
+	}
+	return p, nil
+}
+
+// combine sets vars and u from sens and the standard uncertainties u by
+// GUM eq. 16, in the order of operations of uncert.Propagate (so the same
+// sensitivities give the same bits).
+func (p *propagation) combine(u *[nIn]float64, corr []uncert.Correlation) {
+	for k := range NumFigures {
+		for i := range nIn {
+			c := p.sens[k][i]
+			p.vars[k][i] = 0
+			if u[i] != 0 && finite(c) {
+				p.vars[k][i] = (c * u[i]) * (c * u[i])
+			}
+		}
+		if !p.ok[k] {
+			p.u[k] = math.NaN()
+			continue
+		}
+		v := 0.0
+		for i := range nIn {
+			v += p.vars[k][i]
+		}
+		for _, c := range corr {
+			v += 2 * p.sens[k][c.I] * p.sens[k][c.J] * c.R * u[c.I] * u[c.J]
+		}
+		if v < 0 {
+			v = 0
+		}
+		p.u[k] = math.Sqrt(v)
+	}
+}
+
+// u95 is the expanded uncertainty of figure k (k = 2) and whether it exists.
+func (p *propagation) u95(k FigureID) (float64, bool) {
+	if !p.ok[k] {
+		return 0, false
+	}
+	return uncert.K95 * p.u[k], true
+}
+
+// dominant is the input contributing most to the variance of figure k, or
+// -1 if none does.
+func (p *propagation) dominant(k FigureID) int {
+	best, bi := 0.0, -1
+	for i, v := range p.vars[k] {
+		if v > best {
+			best, bi = v, i
+		}
+	}
+	return bi
+}
