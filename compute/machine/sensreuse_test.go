@@ -79,10 +79,10 @@ func trajCases(t testing.TB) []trajCase {
 			noise: Inputs{P1: 500, T1: 0.3, P2: 20, MassFlow: 0.5, ElectricalPower: 0.1e6}},
 		{name: "air compressor (ideal gas)", fluid: "air",
 			spec: Spec{Kind: Compressor, Inlet: ByPT, Outlet: ByPT, Power: ElectricalPower, DriveEfficiency: 0.97, Uncertainty: airU},
-			p1: 99e3, T1: 288.15, p2: 0.9e6, flow: 50, eta: 0.84, noise: airNoise},
+			p1:   99e3, T1: 288.15, p2: 0.9e6, flow: 50, eta: 0.84, noise: airNoise},
 		{name: "air compressor (Helmholtz)", fluid: "air-helmholtz",
 			spec: Spec{Kind: Compressor, Inlet: ByPT, Outlet: ByPT, Power: ElectricalPower, DriveEfficiency: 0.97, Uncertainty: airU},
-			p1: 99e3, T1: 288.15, p2: 0.9e6, flow: 50, eta: 0.84, noise: airNoise},
+			p1:   99e3, T1: 288.15, p2: 0.9e6, flow: 50, eta: 0.84, noise: airNoise},
 		{name: "natural-gas compressor (GERG-2008)", fluid: "natural-gas",
 			spec: Spec{Kind: Compressor, Inlet: ByPT, Outlet: ByPT, Power: ShaftPower,
 				Uncertainty: Uncertainty{P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, T1Class: rtdA, T2Class: rtdA, MassFlow: Std{Rel: 0.01}, Power: Std{Rel: 0.01}}},
@@ -520,11 +520,11 @@ func TestSensitivityReuseErrorsAndNaN(t *testing.T) {
 
 	t.Run("errors pass through and reset the anchor", func(t *testing.T) {
 		bad := []Inputs{
-			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 611.15, MassFlow: -1},                // invalid input
-			{P1: 16e6, T1: 811.15, P2: 4e6, T2: math.NaN(), MassFlow: 250},          // not finite
-			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 523.7, MassFlow: 250},               // (p,T) within U95 of Tsat(4 MPa) = 523.5 K (IAPWS-IF97 region 4, from memory)
-			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 2500, MassFlow: 250},                // beyond the model's range
-			{P1: 16e6, T1: 811.15, P2: 20e6, T2: 611.15, MassFlow: 250},             // turbine outlet above inlet
+			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 611.15, MassFlow: -1},      // invalid input
+			{P1: 16e6, T1: 811.15, P2: 4e6, T2: math.NaN(), MassFlow: 250}, // not finite
+			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 523.7, MassFlow: 250},      // (p,T) within U95 of Tsat(4 MPa) = 523.5 K (IAPWS-IF97 region 4, from memory)
+			{P1: 16e6, T1: 811.15, P2: 4e6, T2: 2500, MassFlow: 250},       // beyond the model's range
+			{P1: 16e6, T1: 811.15, P2: 20e6, T2: 611.15, MassFlow: 250},    // turbine outlet above inlet
 		}
 		for i, b := range bad {
 			var cache Sensitivities
