@@ -11,6 +11,17 @@
 // one bad sample per item (StatusCode BadNoCommunication) at the time the
 // link was lost, so the zero-order hold in the windows stops there instead
 // of holding the last value across the outage.
+//
+// Server authentication: with security mode Sign or SignAndEncrypt the
+// certificate the server offers on the selected endpoint must be one of
+// TrustedServerCertificates (byte for byte), be inside its validity period
+// and name the endpoint's application URI, before the secure channel is
+// opened (trust.go). A refusal is an *UntrustedServerError
+// (errors.Is(err, ErrUntrustedServer)) carrying the SHA-1 and SHA-256
+// thumbprints; Run keeps retrying, as after any connection error, and
+// counts refusals (TrustStatus, Collector). AcceptAnyServerCertificate
+// switches the check off for commissioning and is logged as a warning at
+// start and at every connection.
 package opcuasrc
 
 import (
@@ -54,6 +65,22 @@ type Config struct {
 	KeyFile  string `yaml:"key_file"`
 	// ApplicationURI of this client; must match the certificate's URI.
 	ApplicationURI string `yaml:"application_uri"`
+	// TrustedServerCertificates: the server application instance
+	// certificates this client trusts, as files (DER or PEM, one or more
+	// certificates) or directories (their *.der, *.pem, *.crt and *.cer
+	// files, not recursive). Read at start and again at every connection
+	// attempt, so a certificate copied into a listed directory is used at
+	// the next attempt. Required with security_mode Sign or SignAndEncrypt
+	// unless AcceptAnyServerCertificate; refused with security_mode None,
+	// where there is no secure channel and the server is not
+	// authenticated at all.
+	TrustedServerCertificates []string `yaml:"trusted_server_certificates"`
+	// AcceptAnyServerCertificate: commissioning only. The server's
+	// certificate is not checked, so a man in the middle can pose as the
+	// server; logged as a warning at start and at every connection with
+	// the thumbprint accepted. Only with security_mode Sign or
+	// SignAndEncrypt, and not together with TrustedServerCertificates.
+	AcceptAnyServerCertificate bool `yaml:"accept_any_server_certificate"`
 	// PublishingInterval of the subscription (default 500 ms).
 	PublishingInterval time.Duration `yaml:"publishing_interval"`
 	// ReconnectWait between connection attempts (default 2 s).
@@ -87,7 +114,11 @@ var (
 	// ErrNoEndpoint: the server offers no endpoint with the requested
 	// security policy and mode.
 	ErrNoEndpoint = errors.New("no matching opc ua endpoint")
-	errNoItems    = fmt.Errorf("%w: no items", ErrConfig)
+	// ErrTrustSettings (which wraps ErrConfig) is wrapped when
+	// trusted_server_certificates and accept_any_server_certificate do
+	// not fit the security mode or each other.
+	ErrTrustSettings = fmt.Errorf("%w: server certificate trust", ErrConfig)
+	errNoItems       = fmt.Errorf("%w: no items", ErrConfig)
 )
 
 func (c *Config) defaults() error {
@@ -112,6 +143,9 @@ func (c *Config) defaults() error {
 	}
 	if (c.SecurityPolicy == "None") != (c.SecurityMode == "None") {
 		return fmt.Errorf("%w: security_policy %s does not go with security_mode %s", ErrConfig, c.SecurityPolicy, c.SecurityMode)
+	}
+	if err := c.checkTrust(); err != nil {
+		return err
 	}
 	switch c.Auth {
 	case "", "anonymous":
@@ -176,6 +210,43 @@ func (c *Config) defaults() error {
 	return nil
 }
 
+// checkTrust applies the rules of TrustedServerCertificates and
+// AcceptAnyServerCertificate (see their docs).
+func (c *Config) checkTrust() error {
+	trusted := len(c.TrustedServerCertificates) > 0
+	if c.SecurityMode == "None" {
+		if trusted {
+			return fmt.Errorf("%w: trusted_server_certificates with security_mode None: without a secure channel the server is not authenticated, so the list would check nothing", ErrTrustSettings)
+		}
+		if c.AcceptAnyServerCertificate {
+			return fmt.Errorf("%w: accept_any_server_certificate with security_mode None: there is no server certificate to accept", ErrTrustSettings)
+		}
+		return nil
+	}
+	if trusted && c.AcceptAnyServerCertificate {
+		return fmt.Errorf("%w: both trusted_server_certificates and accept_any_server_certificate: choose one", ErrTrustSettings)
+	}
+	if !trusted && !c.AcceptAnyServerCertificate {
+		return fmt.Errorf("%w: security_mode %s needs trusted_server_certificates (the server's certificate files or a directory of them; "+
+			"exergywatch browse shows the server's thumbprint), or accept_any_server_certificate: true for commissioning only", ErrTrustSettings, c.SecurityMode)
+	}
+	for i, p := range c.TrustedServerCertificates {
+		if strings.TrimSpace(p) == "" {
+			return fmt.Errorf("%w: trusted_server_certificates[%d] is empty", ErrTrustSettings, i)
+		}
+	}
+	return nil
+}
+
+// loadTrust reads the trust list; nil with AcceptAnyServerCertificate or
+// security mode None.
+func (c *Config) loadTrust() (*TrustList, error) {
+	if c.SecurityMode == "None" || c.AcceptAnyServerCertificate {
+		return nil, nil
+	}
+	return LoadTrustList(c.TrustedServerCertificates)
+}
+
 // Source reads samples from one OPC UA server.
 type Source struct {
 	cfg     Config
@@ -190,6 +261,7 @@ type Source struct {
 	mu        sync.Mutex
 	sessions  int
 	lastGap   time.Duration
+	trustStat TrustStatus
 	connected chan struct{}
 	connOnce  sync.Once
 }
@@ -212,6 +284,20 @@ func New(cfg Config, q *ingest.Queue, metrics *ingest.Metrics, log *slog.Logger,
 	s.cert, s.key, err = LoadOrMakeCertificate(cfg.CertFile, cfg.KeyFile, cfg.ApplicationURI, cfg.SecurityPolicy != "None")
 	if err != nil {
 		return nil, fmt.Errorf("%w: %v", ErrConfig, err)
+	}
+	s.trustStat.AcceptAny = cfg.AcceptAnyServerCertificate
+	switch tl, err := cfg.loadTrust(); {
+	case err != nil:
+		return nil, fmt.Errorf("%w: %w", ErrConfig, err)
+	case cfg.AcceptAnyServerCertificate:
+		s.log.Warn("OPC UA SERVER CERTIFICATE NOT CHECKED (accept_any_server_certificate: true): a man in the middle can pose as the server; "+
+			"commissioning only: list the server's certificate in trusted_server_certificates", "security", cfg.SecurityPolicy+"/"+cfg.SecurityMode)
+	case tl != nil:
+		if tl.Len() == 0 {
+			s.log.Warn("trusted_server_certificates holds no certificate: every server will be refused", "entries", cfg.TrustedServerCertificates)
+		} else {
+			s.log.Info("opc ua server trust list", "certificates", tl.Len(), "sha256", tl.SHA256())
+		}
 	}
 	return s, nil
 }
@@ -285,12 +371,31 @@ func SelfSigned(appURI string, hosts []string) ([]byte, *rsa.PrivateKey, error) 
 
 var policyURIs = map[string]string{"None": ua.SecurityPolicyURINone, "Basic256Sha256": ua.SecurityPolicyURIBasic256Sha256}
 
-// ClientOptions selects the endpoint and returns the gopcua options for
-// the configured security and identity (also used by browse).
+// ClientOptions selects the endpoint, verifies the server certificate it
+// offers (security mode Sign or SignAndEncrypt; see
+// VerifyServerCertificate) and returns the gopcua options for the
+// configured security and identity (also used by browse). A refused
+// certificate gives an *UntrustedServerError.
 func ClientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey) ([]opcua.Option, error) {
+	opts, _, err := clientOptions(ctx, cfg, cert, key)
+	return opts, err
+}
+
+// clientOptions also returns the server's leaf certificate when security is
+// on (checked, or accepted unchecked with AcceptAnyServerCertificate).
+func clientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey) ([]opcua.Option, *x509.Certificate, error) {
+	if err := cfg.checkTrust(); err != nil {
+		return nil, nil, err
+	}
+	// The trust list is read before the server is asked, so an unreadable
+	// list is reported as such and never as an untrusted server.
+	trust, err := cfg.loadTrust()
+	if err != nil {
+		return nil, nil, err
+	}
 	eps, err := opcua.GetEndpoints(ctx, cfg.Endpoint)
 	if err != nil {
-		return nil, fmt.Errorf("get endpoints: %w", err)
+		return nil, nil, fmt.Errorf("get endpoints: %w", err)
 	}
 	mode := ua.MessageSecurityModeFromString(cfg.SecurityMode)
 	var ep *ua.EndpointDescription
@@ -305,7 +410,16 @@ func ClientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.Privat
 		for _, e := range eps {
 			offered = append(offered, strings.TrimPrefix(e.SecurityPolicyURI, "http://opcfoundation.org/UA/SecurityPolicy#")+"/"+e.SecurityMode.String())
 		}
-		return nil, fmt.Errorf("%w: want %s/%s, server offers %s", ErrNoEndpoint, cfg.SecurityPolicy, cfg.SecurityMode, strings.Join(offered, ", "))
+		return nil, nil, fmt.Errorf("%w: want %s/%s, server offers %s", ErrNoEndpoint, cfg.SecurityPolicy, cfg.SecurityMode, strings.Join(offered, ", "))
+	}
+	var leaf *x509.Certificate
+	if mode != ua.MessageSecurityModeNone {
+		// Before any secure channel: the certificate checked here is the
+		// one SecurityFromEndpoint gives gopcua to encrypt the
+		// OpenSecureChannel request with (see trust.go).
+		if leaf, err = VerifyServerCertificate(ep, cfg.Endpoint, trust, time.Now()); err != nil {
+			return nil, leaf, err
+		}
 	}
 	opts := []opcua.Option{
 		opcua.AutoReconnect(false),
@@ -330,7 +444,7 @@ func ClientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.Privat
 		tt = ua.UserTokenTypeAnonymous
 	}
 	opts = append(opts, opcua.SecurityFromEndpoint(ep, tt))
-	return opts, nil
+	return opts, leaf, nil
 }
 
 // Run connects, subscribes and delivers samples until ctx ends, reconnecting
@@ -348,7 +462,12 @@ func (s *Source) Run(ctx context.Context) error {
 		if errors.Is(err, ErrNoEndpoint) {
 			return err
 		}
-		if err != nil {
+		var ue *UntrustedServerError
+		switch {
+		case errors.As(err, &ue):
+			s.limiter.Warn(s.clock.Now(), "untrusted", "opc ua server refused: its certificate is not trusted", "reason", ue.Reason.String(),
+				"subject", ue.Subject, "sha1", ue.SHA1, "sha256", ue.SHA256, "not_after", ue.NotAfter, "err", err)
+		case err != nil:
 			s.limiter.Warn(s.clock.Now(), "session", "opc ua session ended", "err", err)
 		}
 		select {
@@ -364,21 +483,30 @@ func (s *Source) Run(ctx context.Context) error {
 // called once when the connection is lost or closed. Refusals keep the
 // server's StatusCode in the error chain (errors.Is(err,
 // ua.StatusBadUserAccessDenied)).
+//
+// With security mode Sign or SignAndEncrypt the server certificate is
+// verified first (ClientOptions); a refusal is an *UntrustedServerError.
 func Connect(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey, onLost func()) (*opcua.Client, error) {
+	c, _, err := connect(ctx, cfg, cert, key, onLost)
+	return c, err
+}
+
+// connect is Connect that also returns the server certificate accepted.
+func connect(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey, onLost func()) (*opcua.Client, *x509.Certificate, error) {
 	if err := cfg.defaults(); err != nil && !errors.Is(err, errNoItems) {
-		return nil, err
+		return nil, nil, err
 	}
 	if cert == nil && cfg.SecurityPolicy != "None" {
 		var err error
 		if cert, key, err = LoadOrMakeCertificate(cfg.CertFile, cfg.KeyFile, cfg.ApplicationURI, true); err != nil {
-			return nil, fmt.Errorf("%w: %v", ErrConfig, err)
+			return nil, nil, fmt.Errorf("%w: %v", ErrConfig, err)
 		}
 	}
 	cctx, cancel := context.WithTimeout(ctx, cfg.RequestTimeout)
 	defer cancel()
-	opts, err := ClientOptions(cctx, cfg, cert, key)
+	opts, leaf, err := clientOptions(cctx, cfg, cert, key)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	if onLost != nil {
 		var once sync.Once
@@ -390,18 +518,19 @@ func Connect(ctx context.Context, cfg Config, cert []byte, key *rsa.PrivateKey, 
 	}
 	c, err := opcua.NewClient(cfg.Endpoint, opts...)
 	if err != nil {
-		return nil, fmt.Errorf("%w: %v", ErrConfig, err)
+		return nil, nil, fmt.Errorf("%w: %v", ErrConfig, err)
 	}
 	if err := c.Connect(cctx); err != nil {
-		return nil, fmt.Errorf("connect: %w", err)
+		return nil, nil, fmt.Errorf("connect: %w", err)
 	}
-	return c, nil
+	return c, leaf, nil
 }
 
 // session runs one connection: connect, subscribe, deliver until lost.
 func (s *Source) session(ctx context.Context, lostAt *time.Time) error {
 	lost := make(chan struct{})
-	c, err := Connect(ctx, s.cfg, s.cert, s.key, func() { close(lost) })
+	c, leaf, err := connect(ctx, s.cfg, s.cert, s.key, func() { close(lost) })
+	s.noteTrust(leaf, err)
 	if err != nil {
 		return err
 	}

@@ -48,9 +48,12 @@ func requirePeer(t *testing.T) {
 
 type peer struct {
 	endpoint string
-	cmd      *exec.Cmd
-	stdin    io.WriteCloser
-	done     chan error
+	// cert is the file the peer wrote its own certificate to (DER), the
+	// client's trust list in these tests.
+	cert  string
+	cmd   *exec.Cmd
+	stdin io.WriteCloser
+	done  chan error
 }
 
 const peerUser, peerPassword = "ew", "ew-secret"
@@ -68,7 +71,8 @@ func startPeer(t *testing.T) *peer {
 	l.Close()
 	cmd := exec.Command("node", "server.js")
 	cmd.Dir = peerDir
-	cmd.Env = append(os.Environ(), fmt.Sprintf("PEER_PORT=%d", port), "PEER_PKI="+t.TempDir(),
+	pki := t.TempDir()
+	cmd.Env = append(os.Environ(), fmt.Sprintf("PEER_PORT=%d", port), "PEER_PKI="+pki,
 		"PEER_USER="+peerUser, "PEER_PASSWORD="+peerPassword)
 	stdin, err := cmd.StdinPipe()
 	if err != nil {
@@ -108,6 +112,7 @@ func startPeer(t *testing.T) *peer {
 	case <-ready:
 		// Connect by address: the advertised host name may not resolve.
 		p.endpoint = fmt.Sprintf("opc.tcp://127.0.0.1:%d/exergywatch", port)
+		p.cert = filepath.Join(pki, "server_certificate.der")
 	case err := <-p.done:
 		t.Fatalf("node-opcua peer exited: %v\n%s", err, stderr.String())
 	case <-time.After(60 * time.Second):
@@ -117,18 +122,47 @@ func startPeer(t *testing.T) *peer {
 }
 
 // TestPeerSecurity runs against node-opcua 2.182.2 (an independent OPC UA
-// stack that, unlike gopcua's server, checks identities).
+// stack that, unlike gopcua's server, checks identities). The client
+// trusts the peer's certificate from the file the peer wrote, and refuses
+// the peer when only another certificate is trusted.
 func TestPeerSecurity(t *testing.T) {
 	p := startPeer(t)
 	item := []ItemConfig{{NodeID: "ns=1;s=Turbine1.PT101", Tag: "pt101", SamplingInterval: 100 * time.Millisecond}}
 	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
 	defer cancel()
+	// The peer's own certificate, read from the file it wrote, is the
+	// whole trust list: every secure connection below is checked.
+	trust := []string{p.cert}
+
+	t.Run("untrusted peer refused", func(t *testing.T) {
+		// A trust list with some other server's certificate: refused with
+		// the peer's thumbprints, which are those of the file it wrote.
+		other, _, err := SelfSigned("urn:elsewhere:server", []string{"localhost"})
+		if err != nil {
+			t.Fatal(err)
+		}
+		otherFile := filepath.Join(t.TempDir(), "other.der")
+		if err := os.WriteFile(otherFile, other, 0o600); err != nil {
+			t.Fatal(err)
+		}
+		_, err = Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
+			Auth: "username", User: peerUser, Password: peerPassword, TrustedServerCertificates: []string{otherFile}}, nil, nil, nil)
+		der, rerr := os.ReadFile(p.cert)
+		if rerr != nil {
+			t.Fatal(rerr)
+		}
+		s1, s256 := Thumbprints(der)
+		var ue *UntrustedServerError
+		if !errors.As(err, &ue) || ue.Reason != NotInTrustList || !strings.Contains(err.Error(), s1) || !strings.Contains(err.Error(), s256) {
+			t.Fatalf("got %v, want ErrUntrustedServer with SHA-1 %s and SHA-256 %s", err, s1, s256)
+		}
+	})
 
 	for _, mode := range []string{"SignAndEncrypt", "Sign"} {
 		t.Run("Basic256Sha256 "+mode+" username subscribes", func(t *testing.T) {
 			q := ingest.NewQueue(256, nil)
 			src, err := New(Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: mode, Auth: "username",
-				User: peerUser, Password: peerPassword, PublishingInterval: 100 * time.Millisecond, ReconnectWait: 200 * time.Millisecond,
+				User: peerUser, Password: peerPassword, TrustedServerCertificates: trust, PublishingInterval: 100 * time.Millisecond, ReconnectWait: 200 * time.Millisecond,
 				Items: item}, q, nil, quietLog(), nil)
 			if err != nil {
 				t.Fatal(err)
@@ -145,6 +179,14 @@ func TestPeerSecurity(t *testing.T) {
 			waitSample(t, k, "a changed pt101", 10*time.Second, nil, func(s ingest.Sample) bool { return s.Tag == "pt101" && s.Value > first.Value })
 			if first.SourceTime.IsZero() || !first.HasStatus || first.StatusCode != 0 {
 				t.Fatalf("timestamp/status missing: %+v", first)
+			}
+			// The certificate accepted is the one in the peer's file.
+			der, err := os.ReadFile(p.cert)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if _, want := Thumbprints(der); src.TrustStatus().ServerSHA256 != want {
+				t.Fatalf("accepted server certificate %s, want the peer's %s", src.TrustStatus().ServerSHA256, want)
 			}
 		})
 	}
@@ -165,7 +207,7 @@ func TestPeerSecurity(t *testing.T) {
 			t.Fatal(err)
 		}
 		c, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
-			Auth: "certificate", CertFile: certFile, KeyFile: keyFile}, nil, nil, nil)
+			Auth: "certificate", CertFile: certFile, KeyFile: keyFile, TrustedServerCertificates: trust}, nil, nil, nil)
 		if err != nil {
 			t.Fatalf("certificate identity: %v", err)
 		}
@@ -180,7 +222,7 @@ func TestPeerSecurity(t *testing.T) {
 		// reports only changes above 2.5 (the rule itself; no table).
 		q := ingest.NewQueue(256, nil)
 		src, err := New(Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt", Auth: "username",
-			User: peerUser, Password: peerPassword, PublishingInterval: 100 * time.Millisecond,
+			User: peerUser, Password: peerPassword, TrustedServerCertificates: trust, PublishingInterval: 100 * time.Millisecond,
 			Items: []ItemConfig{{NodeID: "ns=1;s=Turbine1.PT101", Tag: "pt101", SamplingInterval: 100 * time.Millisecond, QueueSize: 20, Deadband: 2.5}}},
 			q, nil, quietLog(), nil)
 		if err != nil {
@@ -211,14 +253,15 @@ func TestPeerSecurity(t *testing.T) {
 
 	t.Run("wrong password refused", func(t *testing.T) {
 		_, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
-			Auth: "username", User: peerUser, Password: "wrong"}, nil, nil, nil)
+			Auth: "username", User: peerUser, Password: "wrong", TrustedServerCertificates: trust}, nil, nil, nil)
 		if !errors.Is(err, ua.StatusBadUserAccessDenied) {
 			t.Fatalf("got %v, want BadUserAccessDenied", err)
 		}
 	})
 
 	t.Run("anonymous refused on secure-only endpoint", func(t *testing.T) {
-		_, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt"}, nil, nil, nil)
+		_, err := Connect(ctx, Config{Endpoint: p.endpoint, SecurityPolicy: "Basic256Sha256", SecurityMode: "SignAndEncrypt",
+			TrustedServerCertificates: trust}, nil, nil, nil)
 		// OPC UA Part 4, 5.6.3 ActivateSession: a token type the endpoint
 		// does not offer is Bad_IdentityTokenInvalid (or _Rejected).
 		if !errors.Is(err, ua.StatusBadIdentityTokenInvalid) && !errors.Is(err, ua.StatusBadIdentityTokenRejected) {

@@ -7,6 +7,11 @@
 //   PEER_PKI   directory for the server PKI (created; default: a temp dir)
 //   PEER_USER / PEER_PASSWORD  the one valid user (default ew / ew-secret)
 //
+// The server's own application instance certificate (made by node-opcua in
+// PEER_PKI/own) is also written, DER, to PEER_PKI/server_certificate.der
+// before READY, so that the tests can trust it by a path independent of
+// what the server sends over the wire.
+//
 // Endpoints: Basic256Sha256 with Sign and with SignAndEncrypt only (no
 // None endpoint), anonymous access disabled, username/password checked.
 // Unknown client certificates are accepted automatically (test PKI).
@@ -67,6 +72,7 @@ async function main() {
   });
   const timer = setInterval(() => { p += 1; }, 100);
   await server.start();
+  fs.writeFileSync(path.join(pki, "server_certificate.der"), server.getCertificate());
   process.stdout.write("READY " + server.getEndpointUrl() + "\n");
   const stop = async () => {
     clearInterval(timer);

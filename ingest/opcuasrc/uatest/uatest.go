@@ -2,13 +2,16 @@
 // github.com/gopcua/opcua/server, v0.9.0) for tests: a namespace "plant"
 // with numeric variables whose value, source timestamp and StatusCode the
 // test sets, and which can be stopped and restarted on the same port.
-// Only tests import it. gopcua's server does not check user identities, so
-// security and authentication are tested against node-opcua instead
-// (testdata/opcua-peer).
+// Only tests import it. StartSecure adds Basic256Sha256 Sign and
+// SignAndEncrypt endpoints with a given application instance certificate,
+// for the client's server certificate checks. gopcua's server does not
+// check user identities, so authentication is tested against node-opcua
+// instead (testdata/opcua-peer).
 package uatest
 
 import (
 	"context"
+	"crypto/rsa"
 	"fmt"
 	"net"
 	"sync"
@@ -31,6 +34,8 @@ type Server struct {
 	ns     *server.NodeNameSpace
 	cancel context.CancelFunc
 	wg     sync.WaitGroup // background Close calls
+	cert   []byte         // DER; nil: None endpoint only
+	key    *rsa.PrivateKey
 }
 
 // Endpoint returns opc.tcp://127.0.0.1:<port>.
@@ -47,13 +52,27 @@ func (quiet) Error(string, ...any) {}
 // for each name, initial value 0 (Double).
 func Start(t testing.TB, names ...string) *Server {
 	t.Helper()
+	return start(t, nil, nil, names)
+}
+
+// StartSecure is Start with the application instance certificate cert
+// (DER; its first URI becomes the server's application URI, as gopcua's
+// server.Certificate does) and key, offering Basic256Sha256 with Sign and
+// with SignAndEncrypt besides None. Anonymous identity only.
+func StartSecure(t testing.TB, cert []byte, key *rsa.PrivateKey, names ...string) *Server {
+	t.Helper()
+	return start(t, cert, key, names)
+}
+
+func start(t testing.TB, cert []byte, key *rsa.PrivateKey, names []string) *Server {
+	t.Helper()
 	l, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		t.Fatal(err)
 	}
 	port := l.Addr().(*net.TCPAddr).Port
 	l.Close()
-	s := &Server{t: t, Port: port, names: names, vals: map[string]*ua.DataValue{}}
+	s := &Server{t: t, Port: port, names: names, vals: map[string]*ua.DataValue{}, cert: cert, key: key}
 	for _, n := range names {
 		s.vals[n] = &ua.DataValue{EncodingMask: ua.DataValueValue | ua.DataValueSourceTimestamp | ua.DataValueStatusCode,
 			Value: ua.MustVariant(0.0), SourceTimestamp: time.Now(), Status: ua.StatusOK}
@@ -65,12 +84,19 @@ func Start(t testing.TB, names ...string) *Server {
 
 func (s *Server) start() {
 	s.t.Helper()
-	srv := server.New(
+	opts := []server.Option{
 		server.EnableSecurity("None", ua.MessageSecurityModeNone),
 		server.EnableAuthMode(ua.UserTokenTypeAnonymous),
 		server.EndPoint("127.0.0.1", s.Port),
 		server.SetLogger(quiet{}),
-	)
+	}
+	if s.cert != nil {
+		opts = append(opts,
+			server.Certificate(s.cert), server.PrivateKey(s.key),
+			server.EnableSecurity("Basic256Sha256", ua.MessageSecurityModeSign),
+			server.EnableSecurity("Basic256Sha256", ua.MessageSecurityModeSignAndEncrypt))
+	}
+	srv := server.New(opts...)
 	ctx, cancel := context.WithCancel(context.Background())
 	if err := srv.Start(ctx); err != nil {
 		cancel()
