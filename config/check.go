@@ -156,8 +156,11 @@ func (cfg *Config) checkSources(c *checker) {
 			if s.OPCUA.Password != "" && !isSecretRef(s.OPCUA.Password) {
 				c.add(item+".opcua.password", "secrets are not written in the file", "write env:VARIABLE_NAME or file:/path/to/secret")
 			}
+			trustWrong := cfg.checkOPCUATrust(c, item+".opcua", s.OPCUA)
 			if s.OPCUA.Endpoint == "" {
 				c.add(item+".opcua.endpoint", "no endpoint", "e.g. opc.tcp://host:4840")
+			} else if trustWrong {
+				// reported with its position by checkOPCUATrust
 			} else if err := s.OPCUA.Validate(); err != nil {
 				c.add(item+".opcua", err.Error(), "")
 			}

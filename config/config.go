@@ -41,6 +41,8 @@ type Config struct {
 
 	// File is the path the configuration was read from.
 	File string `yaml:"-"`
+	// raw is the file's text, for placing problems found after decoding.
+	raw []byte
 }
 
 // Site describes the plant.
@@ -298,7 +300,7 @@ func Parse(file string, data []byte) (*Config, error) {
 	if ps := decodeStrict(file, data, &c); ps != nil {
 		return nil, ps
 	}
-	c.File = file
+	c.File, c.raw = file, data
 	c.applyDefaults()
 	if ps := c.check(); len(ps) > 0 {
 		for _, p := range ps {
