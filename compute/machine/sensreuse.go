@@ -54,16 +54,23 @@ const (
 // the law neglects (the note to GUM §5.1.2 lists them); where the law
 // holds, that change is small against c_i. An anchor at most α·u_j away in
 // every input therefore has sensitivities that differ from the current
-// ones by about α times that relative nonlinearity. For the ratio-type figures here (efficiencies,
-// the power mismatch, specific work from power/flow) that is about α times
-// the relative uncertainty of the inputs in a denominator, i.e. about α
-// percent. Measured along noisy and drifting trajectories of a steam
-// turbine, a wet-exhaust turbine, air, natural-gas and ammonia compressors
-// (TestSensitivityReuseAlongTrajectories), the largest deviation of a
-// reused U95 from the fresh one is 1.1 % for α = 0.5, 2.0 % for α = 1 and
-// 3.5 % for α = 2: below the two significant digits to which an
-// uncertainty is stated (GUM §7.2.6) for most values, and far below the
-// reliability of the instrument uncertainties themselves (GUM §G.4.2).
+// ones by about α times that relative nonlinearity. For the ratio-type
+// figures here (efficiencies, the power mismatch, specific work from
+// power/flow) that is about α times the relative uncertainty of the inputs
+// in a denominator, i.e. about α percent; a pump, whose efficiency goes
+// with 1/ΔT² over a temperature rise of about 1 K, is the most nonlinear
+// case. Measured along noisy and drifting trajectories of a steam turbine,
+// a wet-exhaust turbine, a feed pump, air, natural-gas and ammonia
+// compressors (TestSensitivityReuseAlongTrajectories), the largest
+// deviation of a reused U95 from the fresh one is 1.1 % for α = 0.5, 2.9 %
+// for α = 1 (the pump; 2.0 % for the others) and 6.3 % for α = 2 (the
+// pump). The default α = 1 is the largest of these that keeps every machine
+// kind within 5 %, half a unit of the second significant digit of a U95 of
+// 0.0100 (uncertainties are stated to two significant digits, GUM §7.2.6)
+// and far below the reliability of the instrument uncertainties themselves
+// (GUM §G.4.2). The price: with plant noise of the order of u_i or above
+// (class A RTDs read once a minute, say), a box of ±u_i around a noisy
+// anchor is often left, and reuse is rare (see BenchmarkSensitivityReuse).
 //
 // When the sensitivities are found afresh instead:
 //   - the first evaluation, and any after Reset or after an error;
