@@ -115,6 +115,17 @@ type Saturation interface {
 	SatP(T float64) (float64, error)
 }
 
+// SaturationSlope is implemented by fluids that give the slope of their
+// saturation line together with the saturation temperature, so that a
+// caller needing dTsat/dp (e.g. to turn a pressure uncertainty into one of
+// Tsat) does not take a difference of two SatT calls.
+type SaturationSlope interface {
+	// SatTSlope returns the saturation temperature T in K at pressure p in
+	// Pa and the slope of the saturation line dT/dp in K/Pa at p. Errors
+	// are those of SatT.
+	SatTSlope(p float64) (T, dTdp float64, err error)
+}
+
 // Critical is implemented by fluids with a critical point.
 type Critical interface {
 	// CriticalPoint returns the critical temperature (K), pressure (Pa) and

@@ -120,3 +120,29 @@ func BenchmarkHSAmmoniaVapour(b *testing.B) {
 	}
 	benchFlash(b, "ammonia", thermo.HS, s.H, s.S)
 }
+
+// benchSatT times SatT at p and p (1 + 1e-6) in turn, as a caller taking
+// dTsat/dp by a difference does (each call misses the one-entry cache).
+func benchSatT(b *testing.B, name string, p float64) {
+	f := mustNew(b, name)
+	ps := [2]float64{p, p * (1 + 1e-6)}
+	b.ReportAllocs()
+	c0 := cpuTime()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		T, err := f.SatT(ps[i&1])
+		if err != nil {
+			b.Fatal(err)
+		}
+		sinkF = T
+	}
+	b.StopTimer()
+	b.ReportMetric(float64(cpuTime()-c0)/float64(b.N), "cpu-ns/op")
+}
+
+var sinkF float64
+
+func BenchmarkSatTAmmonia(b *testing.B)    { benchSatT(b, "ammonia", 1.2e6) }
+func BenchmarkSatTAmmoniaLow(b *testing.B) { benchSatT(b, "ammonia", 0.3e6) }
+func BenchmarkSatTCO2(b *testing.B)        { benchSatT(b, "co2", 5e6) }
+func BenchmarkSatTWater(b *testing.B)      { benchSatT(b, "water-iapws95", 1e6) }

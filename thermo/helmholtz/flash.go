@@ -9,9 +9,10 @@ import (
 )
 
 var (
-	_ thermo.Fluid      = (*Fluid)(nil)
-	_ thermo.Saturation = (*Fluid)(nil)
-	_ thermo.Critical   = (*Fluid)(nil)
+	_ thermo.Fluid           = (*Fluid)(nil)
+	_ thermo.Saturation      = (*Fluid)(nil)
+	_ thermo.SaturationSlope = (*Fluid)(nil)
+	_ thermo.Critical        = (*Fluid)(nil)
 )
 
 // Flash returns the state fixed by (a, b). Supported pairs: PT, PH, PS, PX,

@@ -189,6 +189,8 @@ type Fluid struct {
 	satTriple satPoint // Maxwell solution at T_min
 	satRef    satPoint // Maxwell solution at 0.99 Tc, start of the near-critical march
 	ancMargin float64  // relative band around the ancillary p_sat inside which the Maxwell solution decides the phase
+	ancLnLo   float64  // ln of the p_sat ancillary at T_min, Pa (ancTsatFast's bracket; set by calibrate)
+	ancLnHi   float64  // ln of the p_sat ancillary just below min(Tc, its T_r), Pa
 	ancTolL   float64  // relative widening of the rhoL ancillary for the liquid-branch bound
 	ancTolV   float64  // relative widening of the rhoV ancillary for the vapour-branch bound
 
@@ -384,6 +386,8 @@ func (f *Fluid) calibrate() error {
 		f.ancTolV = 3*f.ancRV.maxErr + 0.005
 		return nil
 	}
+	f.ancLnLo, _ = f.ancP.lnEval(f.tmin)
+	f.ancLnHi, _ = f.ancP.lnEval(math.Min(f.tc, f.ancP.tr) * (1 - 1e-9))
 	st, err := f.maxwell(f.tmin, 0, 0)
 	if err != nil {
 		return fmt.Errorf("helmholtz: %s: saturation at the triple point: %w", f.name, err)

@@ -12,6 +12,7 @@ import (
 type satPoint struct {
 	T, p       float64 // K, Pa
 	rhoL, rhoV float64 // kg/m3
+	dTdp       float64 // K/Pa, slope of the saturation line (Clausius-Clapeyron); 0 when not computed
 }
 
 // maxwell solves the phase equilibrium at T by the Maxwell criterion (equal
@@ -137,6 +138,10 @@ func (f *Fluid) satAtP(p float64) (satPoint, error) { return f.satAtPc(p, true) 
 
 // satAtPc is satAtP; store says whether to cache the result (one
 // allocation) for the next call at the same p.
+//
+// Below 0.99 Tc the state comes from satAtPFast (one Newton iteration on
+// T and both densities); where that declines, from the Maxwell solve with
+// an outer iteration on T (satAtPSlow). Both meet the same tests.
 func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 	if f.pseudoPure {
 		return satPoint{}, fmt.Errorf("%s: pseudo-pure fluid has no Maxwell saturation: %w", f.name, thermo.ErrUnsupported)
@@ -153,6 +158,145 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 	if p < f.satTriple.p*(1-1e-12) {
 		return satPoint{}, thermo.Below(f.name, "p", "Pa", p, f.satTriple.p, "saturation pressure at the triple-point temperature")
 	}
+	sp, ok := f.satAtPFast(p)
+	if !ok {
+		var err error
+		if sp, err = f.satAtPSlow(p); err != nil {
+			return satPoint{}, err
+		}
+	}
+	if store {
+		c := sp
+		f.lastSatP.Store(&c)
+	}
+	return sp, nil
+}
+
+// satAtPFast solves the saturation state at p (between the triple point
+// and 0.99 Tc) by Newton's method on the three equations
+//
+//	J(tau, delta_L) = pi tau,  J(tau, delta_V) = pi tau,  K(tau, delta_L) = K(tau, delta_V)
+//
+// in (tau, delta_L, delta_V), with J = delta (1 + delta ar_d) = p/(rho_r R T),
+// K = delta ar_d + ar + ln delta (g/(RT) less its common ideal-gas part, as
+// in maxwell) and pi = p/(rho_r R T_r), and their analytic derivatives
+// (J_tau = delta^2 ar_dt, K_tau = delta ar_dt + ar_t), starting from the
+// ancillary temperature and densities. Each step costs one tau evaluation
+// and two residual evaluations, where satAtPSlow runs a Maxwell iteration
+// per temperature. The converged state must pass the tests of the slower
+// path: |p_V - p| <= 1e-12 p, |p_L - p_V| within maxwell's bound, both
+// phases mechanically stable and distinct, equal Gibbs energy to 1e-10 RT.
+// ok is false otherwise (and near the critical point), and the caller
+// falls back to satAtPSlow. The state carries dT/dp from Clausius-Clapeyron.
+func (f *Fluid) satAtPFast(p float64) (satPoint, bool) {
+	if !(f.satRef.T > 0) {
+		return satPoint{}, false
+	}
+	T := f.ancTsatFast(p) * f.tc / f.ancP.tr // corresponding temperature for this equation's Tc
+	if !(T > f.tmin && T < f.satRef.T) {
+		return satPoint{}, false
+	}
+	rl := f.ancRL.eval(T*f.ancRL.tr/f.tc) * f.rhoc / f.ancRL.r
+	rv := f.ancRV.eval(T*f.ancRV.tr/f.tc) * f.rhoc / f.ancRV.r
+	if !(rl > rv && rv > 0) {
+		return satPoint{}, false
+	}
+	tau, dL, dV := f.tr/T, rl/f.rhor, rv/f.rhor
+	pi := p / (f.rhor * f.r * f.tr)
+	var tp tauPart
+	for it := 0; it < 40; it++ {
+		f.q.tauPart(tau, &tp)
+		rL := f.q.residual(&tp, dL, true)
+		rV := f.q.residual(&tp, dV, true)
+		JdL, JdV := 1+2*rL.D+rL.DD, 1+2*rV.D+rV.DD
+		if !(JdL > 0 && JdV > 0) {
+			return satPoint{}, false
+		}
+		G1 := dL*(1+rL.D) - pi*tau
+		G2 := dV*(1+rV.D) - pi*tau
+		G3 := (rL.D + rL.A + math.Log(dL)) - (rV.D + rV.A + math.Log(dV))
+		a1 := dL*rL.DT/tau - pi
+		a2 := dV*rV.DT/tau - pi
+		a3 := ((rL.DT + rL.T) - (rV.DT + rV.T)) / tau
+		den := a3 - a1/dL + a2/dV
+		stT := (-G3 + G1/dL - G2/dV) / den
+		stL := (-G1 - a1*stT) / JdL
+		stV := (-G2 - a2*stT) / JdV
+		if math.IsNaN(stT) || math.IsNaN(stL) || math.IsNaN(stV) || math.IsInf(stT, 0) {
+			return satPoint{}, false
+		}
+		if math.Abs(stT) <= 1e-13*tau && math.Abs(stL) <= 1e-10*dL && math.Abs(stV) <= 1e-10*dV {
+			// Quadratic convergence: after these steps the error is far
+			// below rounding. The final state is evaluated and tested.
+			tau, dL, dV = tau+stT, dL+stL, dV+stV
+			return f.satFastCheck(p, tau, dL, dV)
+		}
+		// Damp steps that would cross or nearly merge the phases (the
+		// trivial solution dL = dV) or move T by more than 2 %.
+		g := 1.0
+		gap := dL - dV
+		for g > 1e-3 && (dL+g*stL <= 0 || dV+g*stV <= 0 || (dL+g*stL)-(dV+g*stV) < 0.5*gap ||
+			math.Abs(g*stV) > 0.5*dV || math.Abs(g*stT) > 0.02*tau) {
+			g /= 2
+		}
+		if g <= 1e-3 {
+			return satPoint{}, false
+		}
+		tau, dL, dV = tau+g*stT, dL+g*stL, dV+g*stV
+	}
+	return satPoint{}, false
+}
+
+// satFastCheck evaluates and tests the converged state of satAtPFast.
+func (f *Fluid) satFastCheck(p, tau, dL, dV float64) (satPoint, bool) {
+	T := f.tr / tau
+	if !(T > f.tmin && T < f.tc) {
+		return satPoint{}, false
+	}
+	var tp tauPart
+	f.q.tauPart(tau, &tp)
+	rL := f.q.residual(&tp, dL, true)
+	rV := f.q.residual(&tp, dV, true)
+	RT := f.r * T
+	pL := dL * f.rhor * RT * (1 + rL.D)
+	pV := dV * f.rhor * RT * (1 + rV.D)
+	gL := rL.D + rL.A + math.Log(dL)
+	gV := rV.D + rV.A + math.Log(dV)
+	if !(dL > dV*(1+1e-6)) || !(1+2*rL.D+rL.DD > 0) || !(1+2*rV.D+rV.DD > 0) || !(pV > 0) ||
+		math.Abs(pV-p) > 1e-12*p || math.Abs(pL-pV) > 1e-8*pV+1e-12*dL*f.rhor*RT || math.Abs(gL-gV) > 1e-10 {
+		return satPoint{}, false
+	}
+	sp := satPoint{T: T, p: p, rhoL: dL * f.rhor, rhoV: dV * f.rhor}
+	sp.dTdp = clapeyronSlope(T, RT, sp.rhoL, sp.rhoV, &rL, &rV)
+	return sp, true
+}
+
+// clapeyronSlope is dT/dp along the saturation line at T (RT = R T) with
+// saturated densities rhoL, rhoV and their residual parts: Clausius-Clapeyron,
+// dT/dp = T (v” - v')/(h” - h'), where h” - h' = RT ((tau ar_t + delta
+// ar_d)” - (...)') as the ideal-gas part is common to both phases.
+func clapeyronSlope(T, RT, rhoL, rhoV float64, rL, rV *resid) float64 {
+	dh := RT * ((rV.T + rV.D) - (rL.T + rL.D))
+	return T * (1/rhoV - 1/rhoL) / dh
+}
+
+// satSlope returns sp with dTdp filled in (Clausius-Clapeyron).
+func (f *Fluid) satSlope(sp satPoint) satPoint {
+	if sp.dTdp != 0 {
+		return sp
+	}
+	var tp tauPart
+	f.q.tauPart(f.tr/sp.T, &tp)
+	rL := f.q.residual(&tp, sp.rhoL/f.rhor, true)
+	rV := f.q.residual(&tp, sp.rhoV/f.rhor, true)
+	sp.dTdp = clapeyronSlope(sp.T, f.r*sp.T, sp.rhoL, sp.rhoV, &rL, &rV)
+	return sp
+}
+
+// satAtPSlow finds the saturation temperature at p by Newton's method on
+// ln p with the Clapeyron slope, each step a Maxwell solve (with its
+// near-critical march).
+func (f *Fluid) satAtPSlow(p float64) (satPoint, error) {
 	T := f.ancTsat(p) * f.tc / f.ancP.tr // corresponding temperature for this equation's Tc
 	lo, hi := f.tmin, f.tc
 	if !(T > lo && T < hi) {
@@ -182,10 +326,6 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 		}
 		if math.Abs(sp.p-p) <= 1e-12*p {
 			sp.p = p
-			if store {
-				c := sp
-				f.lastSatP.Store(&c)
-			}
 			return sp, nil
 		}
 		// Clapeyron: dp/dT = (sV - sL)/(vV - vL).
@@ -202,10 +342,6 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 		if math.Abs(Tn-T) <= 1e-13*T {
 			if math.Abs(sp.p-p) <= 1e-10*p {
 				sp.p = p
-				if store {
-					c := sp
-					f.lastSatP.Store(&c)
-				}
 				return sp, nil
 			}
 		}
@@ -218,6 +354,65 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 func (f *Fluid) ancTsat(p float64) float64 {
 	T, _ := f.ancInvert(&f.ancP, p)
 	return T
+}
+
+// ancTsatFast is ancTsat by Newton's method in 1/T on ln p with the
+// analytic slope of the ancillary (one evaluation per step instead of
+// three), safeguarded by bisection; when it fails it returns ancTsat(p).
+// It is only a starting value.
+func (f *Fluid) ancTsatFast(p float64) float64 {
+	a := &f.ancP
+	lo, hi := f.tmin, math.Min(f.tc, a.tr)*(1-1e-9)
+	lp := math.Log(p)
+	vlo, vhi := f.ancLnLo, f.ancLnHi // a.lnEval at lo and hi
+	if !(vlo < lp && lp < vhi) {
+		return f.ancTsat(p) // outside the ancillary's range: its nearer end
+	}
+	// ln p is nearly linear in 1/T: interpolate for the start.
+	x := 1/lo + (lp-vlo)/(vhi-vlo)*(1/hi-1/lo)
+	T := 1 / x
+	for it := 0; it < 50; it++ {
+		v, d := a.lnEval(T)
+		v -= lp
+		if v > 0 {
+			hi = T
+		} else {
+			lo = T
+		}
+		// d ln p/d(1/T) = -T^2 d ln p/dT
+		Tn := 1 / (1/T + v/(T*T*d))
+		if math.Abs(Tn-T) < 1e-12*T {
+			return Tn
+		}
+		if !(Tn > lo && Tn < hi) {
+			Tn = 0.5 * (lo + hi)
+		}
+		T = Tn
+	}
+	return f.ancTsat(p)
+}
+
+// lnEval returns ln a.eval(T) and its derivative with respect to T.
+func (a *ancillary) lnEval(T float64) (v, dvdT float64) {
+	th := 1 - T/a.tr
+	var s, ds float64 // sum n theta^t and d/dT of it
+	if th > 0 {
+		lth := math.Log(th)
+		for i, n := range a.n {
+			w := n * fexp(a.t[i]*lth)
+			s += w
+			ds += w * a.t[i]
+		}
+		ds /= -th * a.tr
+	}
+	switch a.kind {
+	case 0:
+		return math.Log(a.r * (1 + s)), ds / (1 + s)
+	case 1:
+		return math.Log(a.r) + a.tr/T*s, a.tr / T * (ds - s/T)
+	default:
+		return math.Log(a.r) + s, ds
+	}
 }
 
 // ancInvert solves a.eval(T) = p for T in [T_min, min(Tc, a.tr)] (Newton on
@@ -278,6 +473,23 @@ func (f *Fluid) SatT(p float64) (float64, error) {
 		return 0, err
 	}
 	return sp.T, nil
+}
+
+// SatTSlope returns the saturation temperature T in K at p in Pa and the
+// slope of the saturation line dT/dp in K/Pa from Clausius-Clapeyron,
+// dT/dp = T (v” - v')/(h” - h'), with the saturated states of the same
+// solution (exact for the equation, no difference quotient). Errors as
+// SatT; pseudo-pure air returns ErrUnsupported.
+func (f *Fluid) SatTSlope(p float64) (T, dTdp float64, err error) {
+	if err := thermo.CheckFinite(f.name, []string{"p"}, p); err != nil {
+		return 0, 0, err
+	}
+	sp, err := f.satAtP(p)
+	if err != nil {
+		return 0, 0, err
+	}
+	sp = f.satSlope(sp)
+	return sp.T, sp.dTdp, nil
 }
 
 // Saturated returns the saturated liquid and vapour states at T in K.

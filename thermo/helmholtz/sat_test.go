@@ -1,0 +1,132 @@
+package helmholtz
+
+import (
+	"errors"
+	"math"
+	"testing"
+
+	"github.com/exergywatch/exergywatch/thermo"
+)
+
+// satPressures returns pressures from just above the triple-point
+// saturation pressure to the saturation pressure at 0.99 Tc (log spaced),
+// where satAtPFast applies, and three closer to the critical point, where
+// SatT falls back to the Maxwell march.
+func satPressures(f *Fluid) (fast, nearCrit []float64) {
+	lo, hi := math.Log(f.satTriple.p*1.001), math.Log(f.satRef.p*0.999)
+	const n = 24
+	for i := 0; i <= n; i++ {
+		fast = append(fast, math.Exp(lo+(hi-lo)*float64(i)/n))
+	}
+	for _, x := range []float64{5e-3, 2e-3, 1e-3} {
+		if p, err := f.SatP(f.tc * (1 - x)); err == nil {
+			nearCrit = append(nearCrit, p)
+		}
+	}
+	return fast, nearCrit
+}
+
+// TestSatFastMatchesMaxwellPath: the direct Newton solve of the saturation
+// state at p (satAtPFast) gives the state of the Maxwell solve with an
+// outer iteration on T (satAtPSlow, the path SatT took before): T to
+// 1e-12 and both densities to 1e-9, relative, at 25 pressures per fluid
+// between the triple point and 0.99 Tc (same equations, no external
+// source; the two paths share no iteration).
+func TestSatFastMatchesMaxwellPath(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		fast, _ := satPressures(f)
+		for _, p := range fast {
+			sf, ok := f.satAtPFast(p)
+			if !ok {
+				t.Errorf("%s p=%g: satAtPFast declined below 0.99 Tc", name, p)
+				continue
+			}
+			ss, err := f.satAtPSlow(p)
+			if err != nil {
+				t.Errorf("%s p=%g: satAtPSlow: %v", name, p, err)
+				continue
+			}
+			if relDiff(sf.T, ss.T) > 1e-12 || relDiff(sf.rhoL, ss.rhoL) > 1e-9 || relDiff(sf.rhoV, ss.rhoV) > 1e-9 {
+				t.Errorf("%s p=%g: fast T %.15g rhoL %.12g rhoV %.12g, Maxwell path T %.15g rhoL %.12g rhoV %.12g",
+					name, p, sf.T, sf.rhoL, sf.rhoV, ss.T, ss.rhoL, ss.rhoV)
+			}
+			if sf.p != p {
+				t.Errorf("%s p=%g: state carries p = %g", name, p, sf.p)
+			}
+		}
+	}
+}
+
+// TestSatTSlope: SatTSlope returns SatT's temperature, and its slope
+// agrees with (a) a central difference of SatT (step 1e-5 p; 1e-6
+// relative, common practice, no source) and (b) Clausius-Clapeyron
+// evaluated independently from the full saturated states of Saturated(T),
+// T (v” - v')/(h” - h') (1e-9 relative; an identity of the equation),
+// at 25 pressures per fluid below 0.99 Tc and three closer to Tc
+// (central difference there to 1e-5: the slope changes fast).
+func TestSatTSlope(t *testing.T) {
+	for _, name := range pureNames {
+		f := mustNew(t, name)
+		fast, near := satPressures(f)
+		for i, p := range append(fast, near...) {
+			tolFD := 1e-6
+			if i >= len(fast) {
+				tolFD = 1e-5
+			}
+			f.lastSatP.Store(nil)
+			T, slope, err := f.SatTSlope(p)
+			if err != nil {
+				t.Errorf("%s p=%g: %v", name, p, err)
+				continue
+			}
+			f.lastSatP.Store(nil)
+			Ts, err := f.SatT(p)
+			if err != nil || Ts != T {
+				t.Errorf("%s p=%g: SatTSlope T = %.15g, SatT %.15g, %v", name, p, T, Ts, err)
+			}
+			h := 1e-5 * p
+			T1, err1 := f.SatT(p + h)
+			T0, err0 := f.SatT(p - h)
+			if err1 != nil || err0 != nil {
+				t.Errorf("%s p=%g: %v %v", name, p, err1, err0)
+				continue
+			}
+			if fd := (T1 - T0) / (2 * h); relDiff(slope, fd) > tolFD {
+				t.Errorf("%s p=%g: dT/dp = %.10g K/Pa, central difference of SatT %.10g", name, p, slope, fd)
+			}
+			l, v, err := f.Saturated(T)
+			if err != nil {
+				t.Errorf("%s T=%g: %v", name, T, err)
+				continue
+			}
+			if cc := T * (v.V - l.V) / (v.H - l.H); relDiff(slope, cc) > 1e-9 {
+				t.Errorf("%s p=%g: dT/dp = %.12g K/Pa, Clausius-Clapeyron from Saturated(T) %.12g", name, p, slope, cc)
+			}
+		}
+	}
+}
+
+// TestSatTSlopeErrors: the errors of SatT (no source needed: API contract).
+func TestSatTSlopeErrors(t *testing.T) {
+	f := mustNew(t, "ammonia")
+	for _, c := range []struct {
+		p    float64
+		want error
+	}{
+		{math.NaN(), thermo.ErrNotFinite},
+		{math.Inf(1), thermo.ErrNotFinite},
+		{-1, thermo.ErrOutOfRange},
+		{0, thermo.ErrOutOfRange},
+		{f.pc * 1.01, thermo.ErrOutOfRange},
+		{f.satTriple.p * 0.5, thermo.ErrOutOfRange},
+	} {
+		if _, _, err := f.SatTSlope(c.p); !errors.Is(err, c.want) {
+			t.Errorf("SatTSlope(%g): %v, want %v", c.p, err, c.want)
+		}
+	}
+	air := mustNew(t, "air-helmholtz")
+	if _, _, err := air.SatTSlope(1e5); !errors.Is(err, thermo.ErrUnsupported) {
+		t.Errorf("air SatTSlope: %v, want ErrUnsupported", err)
+	}
+}
