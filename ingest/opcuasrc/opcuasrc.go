@@ -393,27 +393,12 @@ func clientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.Privat
 	if err != nil {
 		return nil, nil, err
 	}
-	eps, err := opcua.GetEndpoints(ctx, cfg.Endpoint)
+	ep, err := selectEndpoint(ctx, cfg)
 	if err != nil {
-		return nil, nil, fmt.Errorf("get endpoints: %w", err)
-	}
-	mode := ua.MessageSecurityModeFromString(cfg.SecurityMode)
-	var ep *ua.EndpointDescription
-	for _, e := range eps {
-		if e.SecurityPolicyURI == policyURIs[cfg.SecurityPolicy] && e.SecurityMode == mode {
-			ep = e
-			break
-		}
-	}
-	if ep == nil {
-		var offered []string
-		for _, e := range eps {
-			offered = append(offered, strings.TrimPrefix(e.SecurityPolicyURI, "http://opcfoundation.org/UA/SecurityPolicy#")+"/"+e.SecurityMode.String())
-		}
-		return nil, nil, fmt.Errorf("%w: want %s/%s, server offers %s", ErrNoEndpoint, cfg.SecurityPolicy, cfg.SecurityMode, strings.Join(offered, ", "))
+		return nil, nil, err
 	}
 	var leaf *x509.Certificate
-	if mode != ua.MessageSecurityModeNone {
+	if ep.SecurityMode != ua.MessageSecurityModeNone {
 		// Before any secure channel: the certificate checked here is the
 		// one SecurityFromEndpoint gives gopcua to encrypt the
 		// OpenSecureChannel request with (see trust.go).
@@ -445,6 +430,58 @@ func clientOptions(ctx context.Context, cfg Config, cert []byte, key *rsa.Privat
 	}
 	opts = append(opts, opcua.SecurityFromEndpoint(ep, tt))
 	return opts, leaf, nil
+}
+
+// selectEndpoint asks the server for its endpoints (GetEndpoints, on an
+// unsecured channel) and picks the one with the configured policy and mode.
+func selectEndpoint(ctx context.Context, cfg Config) (*ua.EndpointDescription, error) {
+	eps, err := opcua.GetEndpoints(ctx, cfg.Endpoint)
+	if err != nil {
+		return nil, fmt.Errorf("get endpoints: %w", err)
+	}
+	mode := ua.MessageSecurityModeFromString(cfg.SecurityMode)
+	for _, e := range eps {
+		if e.SecurityPolicyURI == policyURIs[cfg.SecurityPolicy] && e.SecurityMode == mode {
+			return e, nil
+		}
+	}
+	var offered []string
+	for _, e := range eps {
+		offered = append(offered, strings.TrimPrefix(e.SecurityPolicyURI, "http://opcfoundation.org/UA/SecurityPolicy#")+"/"+e.SecurityMode.String())
+	}
+	return nil, fmt.Errorf("%w: want %s/%s, server offers %s", ErrNoEndpoint, cfg.SecurityPolicy, cfg.SecurityMode, strings.Join(offered, ", "))
+}
+
+// EndpointCertificate returns, unchecked, what the endpoint with the
+// configured (secure) policy and mode says about the server's certificate:
+// an *UntrustedServerError with reason NotInTrustList carrying subject,
+// thumbprints, validity and the DER bytes. It opens no secure channel and
+// trusts nothing; browse uses it to show an engineer the certificate to
+// compare with the server's own display before trusting it.
+func EndpointCertificate(ctx context.Context, cfg Config) (*UntrustedServerError, error) {
+	if cfg.SecurityMode == "" || cfg.SecurityMode == "None" {
+		return nil, fmt.Errorf("%w: security_mode None has no server certificate", ErrConfig)
+	}
+	cfg.AcceptAnyServerCertificate, cfg.TrustedServerCertificates = true, nil
+	if err := cfg.defaults(); err != nil && !errors.Is(err, errNoItems) {
+		return nil, err
+	}
+	cctx, cancel := context.WithTimeout(ctx, cfg.RequestTimeout)
+	defer cancel()
+	ep, err := selectEndpoint(cctx, cfg)
+	if err != nil {
+		return nil, err
+	}
+	_, err = VerifyServerCertificate(ep, cfg.Endpoint, &TrustList{}, time.Now())
+	var ue *UntrustedServerError
+	if !errors.As(err, &ue) {
+		return nil, err
+	}
+	if ue.Reason == CertificateUnreadable {
+		return nil, ue
+	}
+	ue.Detail = "no trust list given: not checked"
+	return ue, nil
 }
 
 // Run connects, subscribes and delivers samples until ctx ends, reconnecting

@@ -474,6 +474,24 @@ func TestSecureUntrustedServerRefused(t *testing.T) {
 	}
 }
 
+// TestEndpointCertificate: what browse shows is the certificate the
+// server was started with.
+func TestEndpointCertificate(t *testing.T) {
+	srv, der := secureServer(t, time.Now().Add(-time.Hour), time.Now().Add(24*time.Hour))
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
+	defer cancel()
+	ue, err := EndpointCertificate(ctx, secureCfg(srv, "SignAndEncrypt"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(ue.Certificate, der) || ue.EndpointApplicationURI != "urn:exergywatch:test:server" || !strings.Contains(ue.Subject, "test server") {
+		t.Fatalf("got %+v", ue)
+	}
+	if _, err := EndpointCertificate(ctx, Config{Endpoint: srv.Endpoint()}); !errors.Is(err, ErrConfig) {
+		t.Fatalf("security None: %v, want ErrConfig", err)
+	}
+}
+
 // TestSecureExpiredServerRefused: the server's certificate is in the trust
 // list but expired an hour ago.
 func TestSecureExpiredServerRefused(t *testing.T) {
