@@ -35,6 +35,16 @@ Flags:
   --cert FILE --key FILE                    application instance certificate and key
                                             (a secure policy without them uses an
                                             ephemeral self-signed certificate)
+  --trust FILE|DIR                          a trusted server certificate (DER or PEM) or a
+                                            directory of them; repeatable. With a secure
+                                            mode and no --trust, browse only prints the
+                                            certificate the server offers (subject, SHA-1
+                                            and SHA-256 thumbprints) and connects to nothing
+  --save-server-certificate FILE            write the certificate a server offers (DER) to
+                                            FILE when it is not trusted (never overwrites);
+                                            compare its thumbprint with the server's own
+                                            display before trusting it
+  --accept-any-server-certificate           do not check the server (commissioning only)
   --root NODEID                             start node (default i=85, Objects)
   --depth N                                 levels to descend (default 6)
   --max N                                   stop after N variables (default 5000)
@@ -50,6 +60,10 @@ func runBrowse(args []string, stdout, stderr io.Writer) int {
 	user := fs.String("user", "", "")
 	cert := fs.String("cert", "", "")
 	key := fs.String("key", "", "")
+	var trust []string
+	fs.Func("trust", "", func(v string) error { trust = append(trust, v); return nil })
+	saveCert := fs.String("save-server-certificate", "", "")
+	acceptAny := fs.Bool("accept-any-server-certificate", false, "")
 	root := fs.String("root", "i=85", "")
 	depth := fs.Int("depth", 6, "")
 	maxVars := fs.Int("max", 5000, "")
@@ -76,11 +90,36 @@ func runBrowse(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	cfg := opcuasrc.Config{Endpoint: fs.Arg(0), SecurityPolicy: *policy, SecurityMode: *mode, Auth: *auth, User: *user,
-		Password: os.Getenv("EXERGYWATCH_OPCUA_PASSWORD"), CertFile: *cert, KeyFile: *key, RequestTimeout: *timeout}
+		Password: os.Getenv("EXERGYWATCH_OPCUA_PASSWORD"), CertFile: *cert, KeyFile: *key, RequestTimeout: *timeout,
+		TrustedServerCertificates: trust, AcceptAnyServerCertificate: *acceptAny}
 	ctx, cancel := context.WithTimeout(context.Background(), *timeout)
 	defer cancel()
+	if *mode != "None" && len(trust) == 0 && !*acceptAny {
+		// Nothing to check against: show what the server offers, so that
+		// it can be compared and trusted, and connect to nothing.
+		ue, err := opcuasrc.EndpointCertificate(ctx, cfg)
+		if err != nil {
+			fmt.Fprintf(stderr, "exergywatch browse: %v\n", err)
+			if errors.Is(err, opcuasrc.ErrConfig) {
+				return 2
+			}
+			return 1
+		}
+		fmt.Fprintln(stderr, "exergywatch browse: no --trust given; the server offers this certificate (not connected):")
+		printServerCertificate(stderr, ue, *saveCert)
+		return 1
+	}
+	if *acceptAny {
+		fmt.Fprintln(stderr, "exergywatch browse: WARNING: the server's certificate is not checked (--accept-any-server-certificate)")
+	}
 	c, err := opcuasrc.Connect(ctx, cfg, nil, nil, nil)
 	if err != nil {
+		var ue *opcuasrc.UntrustedServerError
+		if errors.As(err, &ue) && ue.Certificate != nil {
+			fmt.Fprintf(stderr, "exergywatch browse: the server's certificate is refused: %s (%s)\n", ue.Reason, ue.Detail)
+			printServerCertificate(stderr, ue, *saveCert)
+			return 1
+		}
 		fmt.Fprintf(stderr, "exergywatch browse: %v\n", err)
 		if errors.Is(err, opcuasrc.ErrConfig) {
 			return 2
@@ -107,6 +146,42 @@ func runBrowse(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "exergywatch browse: stopped at --max %d variables\n", *maxVars)
 	}
 	return 0
+}
+
+// printServerCertificate shows a server certificate for an engineer to
+// compare with the server's own display, and saves it when asked.
+func printServerCertificate(w io.Writer, ue *opcuasrc.UntrustedServerError, save string) {
+	validity := ue.NotBefore.UTC().Format(time.RFC3339) + " to " + ue.NotAfter.UTC().Format(time.RFC3339)
+	if now := time.Now(); now.After(ue.NotAfter) {
+		validity += " (EXPIRED)"
+	} else if now.Before(ue.NotBefore) {
+		validity += " (NOT YET VALID)"
+	}
+	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
+	fmt.Fprintf(tw, "  endpoint\t%s\n", ue.Endpoint)
+	fmt.Fprintf(tw, "  subject\t%s\n", ue.Subject)
+	fmt.Fprintf(tw, "  certificate URIs\t%s\n", strings.Join(ue.ApplicationURIs, ", "))
+	fmt.Fprintf(tw, "  endpoint application URI\t%s\n", ue.EndpointApplicationURI)
+	fmt.Fprintf(tw, "  valid\t%s\n", validity)
+	fmt.Fprintf(tw, "  SHA-1 thumbprint\t%s\n", ue.SHA1)
+	fmt.Fprintf(tw, "  SHA-256 thumbprint\t%s\n", ue.SHA256)
+	_ = tw.Flush()
+	if save != "" {
+		f, err := os.OpenFile(save, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o644)
+		if err == nil {
+			_, err = f.Write(ue.Certificate)
+			if cerr := f.Close(); err == nil {
+				err = cerr
+			}
+		}
+		if err != nil {
+			fmt.Fprintf(w, "exergywatch browse: --save-server-certificate: %v\n", err)
+		} else {
+			fmt.Fprintf(w, "saved the certificate (DER) to %s\n", save)
+		}
+	}
+	fmt.Fprintln(w, "If a thumbprint equals the one the server shows for its own certificate, add the saved file "+
+		"to the source's trusted_server_certificates (or give it to browse with --trust).")
 }
 
 type browsedVar struct {
