@@ -23,9 +23,10 @@ import (
 type Water struct{}
 
 var (
-	_ thermo.Fluid      = Water{}
-	_ thermo.Saturation = Water{}
-	_ thermo.Critical   = Water{}
+	_ thermo.Fluid           = Water{}
+	_ thermo.Saturation      = Water{}
+	_ thermo.SaturationSlope = Water{}
+	_ thermo.Critical        = Water{}
 )
 
 // Name returns "water".
@@ -42,6 +43,21 @@ func (Water) SatT(p float64) (float64, error) { return SatT(p) }
 // SatP returns the saturation pressure in Pa at T in K (R7-97(2012)
 // Eq. 30).
 func (Water) SatP(T float64) (float64, error) { return SatP(T) }
+
+// SatTSlope returns the saturation temperature in K at p in Pa (R7-97(2012)
+// Eq. 31) and the slope of that saturation line dT/dp in K/Pa, the
+// reciprocal of the analytic derivative of Eq. 30 (Eqs. 30 and 31 are
+// inverses of each other). This is the exact slope of the curve SatT
+// returns. Clausius-Clapeyron with the IF97 saturated states, T (v” -
+// v')/(h” - h'), agrees with it only as far as the region-4 equation and
+// the basic equations of regions 1-3 agree (measured: within 2e-4 up to
+// 16.5 MPa, 2e-3 in region 3; see TestSatTSlope). Errors as SatT.
+func (Water) SatTSlope(p float64) (T, dTdp float64, err error) {
+	if T, err = SatT(p); err != nil {
+		return 0, 0, err
+	}
+	return T, 1 / dpsatdT(T), nil
+}
 
 var pairArgs = [...][2]string{{"a", "b"}, {"p", "T"}, {"p", "h"}, {"p", "s"}, {"p", "x"}, {"T", "x"}, {"h", "s"}}
 
