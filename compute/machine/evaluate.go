@@ -138,9 +138,10 @@ func evaluateC(spec *Spec, in *Inputs, full bool, cache *Sensitivities, flashes 
 		}
 		var p *propagation
 		if cache != nil {
-			if p = cache.reuse(spec, &x, &u, corr, &o, &defined, nearIn || nearOut); p != nil {
+			var age int
+			if p, age = cache.reuse(spec, &x, &u, corr, &o, &defined, nearIn || nearOut); p != nil {
 				cache.reused++
-				res.SensitivityAge = cache.a.age
+				res.SensitivityAge = age
 			}
 		}
 		if p == nil {

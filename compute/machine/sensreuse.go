@@ -23,21 +23,25 @@ const (
 	// are not needed, but the others depend on it: a rate figure's scale
 	// with the mass flow, for example).
 	DefaultFixedInputTolerance = 1e-3
+	// DefaultAnchors is the number of anchors kept per machine: enough to
+	// cover the noise of a steady operating point within DefaultMaxAge
+	// (measured: more than 16 hardly adds reuse on the demo machines).
+	DefaultAnchors = 16
 )
 
 // Sensitivities carries the sensitivity coefficients c_ki = ∂y_k/∂x_i of
-// one machine from one evaluation to the next, so that consecutive
-// evaluations at nearly the same operating point need not run the 2 flashes
-// (or more) per uncertain input of the central differences again. Pass the
-// same *Sensitivities to EvaluateWith for every evaluation of one machine;
-// the zero value is ready to use (defaults below). It is not safe for
+// one machine from one evaluation to the next, so that evaluations at
+// nearly the same operating point need not run the 2 flashes (or more)
+// per uncertain input of the central differences again. Pass the same
+// *Sensitivities to EvaluateWith for every evaluation of one machine; the
+// zero value is ready to use (defaults above). It is not safe for
 // concurrent use.
 //
 // What is reused and what is not. Figure values are always computed afresh
 // from the current inputs (the three nominal flashes), and so are the
 // standard uncertainties u_i of the current inputs (relative uncertainties
 // and the IEC tolerance classes depend on the reading). Only the c_ki are
-// taken from the anchor, the last evaluation whose sensitivities were found
+// taken from an anchor: a recent evaluation whose sensitivities were found
 // by central differences on the same calculation (uncert.PropagateFrom).
 // The combined standard uncertainty is then GUM eq. 16 (JCGM 100:2008
 // §5.2.2) with the anchor's c and the current u:
@@ -61,60 +65,70 @@ const (
 // with 1/ΔT² over a temperature rise of about 1 K, is the most nonlinear
 // case. Measured along noisy and drifting trajectories of a steam turbine,
 // a wet-exhaust turbine, a feed pump, air, natural-gas and ammonia
-// compressors (TestSensitivityReuseAlongTrajectories), the largest
-// deviation of a reused U95 from the fresh one is 1.1 % for α = 0.5, 2.9 %
-// for α = 1 (the pump; 2.0 % for the others) and 6.3 % for α = 2 (the
-// pump). The default α = 1 is the largest of these that keeps every machine
-// kind within 5 %, half a unit of the second significant digit of a U95 of
-// 0.0100 (uncertainties are stated to two significant digits, GUM §7.2.6)
-// and far below the reliability of the instrument uncertainties themselves
-// (GUM §G.4.2). The price: with plant noise of the order of u_i or above
-// (class A RTDs read once a minute, say), a box of ±u_i around a noisy
-// anchor is often left, and reuse is rare (see BenchmarkSensitivityReuse).
+// compressors (TestSensitivityReuseAlongTrajectories, 16 anchors), the
+// largest deviation of a reused U95 from the fresh one is 1.3 % for
+// α = 0.5, 3.2 % for α = 1 (the pump; 2.1 % for the others) and 7.1 % for
+// α = 2 (the pump; 2.9 % for the others). The default α = 1 is the largest
+// of these that keeps every machine kind within 5 %, half a unit of the
+// second significant digit of a U95 of 0.0100 (uncertainties are stated to
+// two significant digits, GUM §7.2.6), and far below the reliability of
+// the instrument uncertainties themselves (GUM §G.4.2).
 //
-// When the sensitivities are found afresh instead:
-//   - the first evaluation, and any after Reset or after an error;
-//   - another Spec (or the Spec changed);
-//   - an uncertain input moved by more than α·u_i(x) from the anchor, a
-//     used input without uncertainty by more than FixedInputTolerance
-//     relative, or the set of uncertain inputs changed;
-//   - a state changed phase (inlet, outlet, isentropic outlet), the
-//     polytropic method changed (ideal-gas exact vs Schultz), the set of
-//     defined figures or of computable (finite) figures changed;
-//   - a (p,T) state is flagged near saturation;
-//   - the anchor has served MaxAge evaluations, so a slow drift always gets
-//     fresh sensitivities;
-//   - a reused U95 would not be finite.
+// Several anchors. Plant noise of the order of u_i or above (class A RTDs
+// read once a minute, say) leaves a box of ±α·u_i around one noisy anchor
+// at most ticks. The cache therefore keeps the newest Anchors anchors (each
+// made where no kept one qualified) and uses the nearest one that
+// qualifies; the bound above holds whichever serves, since each is within
+// α·u_i of the current inputs.
 //
-// An evaluation only becomes an anchor when its central differences were
+// An anchor qualifies when:
+//   - it was made for this Spec (another Spec, or a changed one, forgets
+//     all anchors) and is at most MaxAge evaluations old, so a slow drift
+//     always gets fresh sensitivities;
+//   - every uncertain input is within α·u_i(x) of it, every used input
+//     without uncertainty within FixedInputTolerance relative, and the set
+//     of uncertain inputs is the same;
+//   - every state has the same phase (inlet, outlet, isentropic outlet),
+//     the polytropic method (exact ideal gas or Schultz), the set of
+//     defined figures and the set of computable (finite) figures are the
+//     same.
+//
+// The sensitivities are found afresh when no anchor qualifies, when a
+// (p,T) state is flagged near saturation, when a reused U95 would not be
+// finite, and after Reset or an error (which forget all anchors). A fresh
+// evaluation only becomes an anchor when its central differences were
 // clean: every perturbed calculation succeeded with the same phases, the
 // same polytropic method and the same finite figures as the nominal one,
-// and every figure that has a value has all its sensitivities. Otherwise
-// the next evaluation is fresh as well.
+// and every figure that has a value has all its sensitivities.
 type Sensitivities struct {
 	// ReuseFraction is α, the largest move of an uncertain input from the
 	// anchor, as a multiple of its current standard uncertainty u_i(x), at
 	// which sensitivities are reused. 0 selects DefaultReuseFraction; a
 	// negative value turns reuse off (every evaluation fresh).
 	ReuseFraction float64
-	// MaxAge is the largest number of evaluations one anchor serves. 0
-	// selects DefaultMaxAge.
+	// MaxAge is the largest age, in evaluations since it was made, of an
+	// anchor that may serve. 0 selects DefaultMaxAge.
 	MaxAge int
 	// FixedInputTolerance is the largest relative move (fraction of |x|)
 	// of a used input that has no uncertainty. 0 selects
 	// DefaultFixedInputTolerance.
 	FixedInputTolerance float64
+	// Anchors is the most anchors kept (the newest); 0 selects
+	// DefaultAnchors. Several anchors cover a noise cloud that one box of
+	// ±α·u_i cannot: the nearest anchor that qualifies serves.
+	Anchors int
 
-	a      anchor
-	fresh  int
-	reused int
+	spec    *Spec // the spec the anchors were made for
+	specVal Spec
+	anchors []anchor // oldest first
+	evals   int      // evaluations with uncertainty since the first
+	fresh   int
+	reused  int
 }
 
-// anchor is the evaluation whose sensitivities are reused.
+// anchor is an evaluation whose sensitivities may be reused.
 type anchor struct {
-	valid   bool
-	spec    *Spec
-	specVal Spec
+	born    int // Sensitivities.evals when it was made
 	x       [nIn]float64
 	uPos    [nIn]bool
 	sens    [NumFigures][nIn]float64
@@ -122,12 +136,14 @@ type anchor struct {
 	defined [NumFigures]bool
 	phase   [nPorts]thermo.Phase
 	poly    PolyMethod
-	age     int
 }
 
-// Reset forgets the anchor: the next evaluation computes its sensitivities
-// afresh. The counts are kept.
-func (s *Sensitivities) Reset() { s.a = anchor{} }
+// Reset forgets the anchors: the next evaluation computes its
+// sensitivities afresh. The counts are kept.
+func (s *Sensitivities) Reset() {
+	s.anchors = s.anchors[:0]
+	s.spec, s.specVal = nil, Spec{}
+}
 
 // Counts returns how many evaluations with uncertainty computed their
 // sensitivities afresh and how many reused them.
@@ -154,6 +170,13 @@ func (s *Sensitivities) fixedTol() float64 {
 	return s.FixedInputTolerance
 }
 
+func (s *Sensitivities) maxAnchors() int {
+	if s.Anchors <= 0 {
+		return DefaultAnchors
+	}
+	return s.Anchors
+}
+
 // EvaluateWith is Evaluate with sensitivity coefficients reused from an
 // earlier evaluation of the same machine at a nearby operating point (see
 // Sensitivities). Figure values, states, quality and reasons are those
@@ -173,11 +196,14 @@ func evaluateWith(spec *Spec, in *Inputs, cache *Sensitivities) (*Result, int, e
 	return res, flashes, err
 }
 
-// sameSpec reports whether the anchor was made for this spec: an equal
+// sameSpec reports whether the anchors were made for this spec: an equal
 // value with the same fluid model (compared as interface values; a model of
 // a type that cannot be compared only through the same *Spec).
-func (a *anchor) sameSpec(s *Spec) (same bool) {
-	x, y := a.specVal, *s
+func (s *Sensitivities) sameSpec(spec *Spec) (same bool) {
+	if s.spec == nil {
+		return false
+	}
+	x, y := s.specVal, *spec
 	fx, fy := x.Fluid, y.Fluid
 	x.Fluid, y.Fluid = nil, nil
 	if x != y {
@@ -188,71 +214,113 @@ func (a *anchor) sameSpec(s *Spec) (same bool) {
 		return false
 	}
 	if !tx.Comparable() {
-		return a.spec == s
+		return s.spec == spec
 	}
 	// A comparable type may still hold an incomparable value (an interface
 	// field holding a slice): == panics then.
 	defer func() {
 		if recover() != nil {
-			same = a.spec == s
+			same = s.spec == spec
 		}
 	}()
 	return fx == fy
 }
 
-// reuse returns the propagation from the anchor's sensitivities and the
-// current uncertainties, or nil when they must be found afresh.
-func (s *Sensitivities) reuse(spec *Spec, x, u *[nIn]float64, corr []uncert.Correlation, o *evalOut, defined *[NumFigures]bool, near bool) *propagation {
-	a := &s.a
+// reuse returns the propagation from the nearest qualifying anchor's
+// sensitivities and the current uncertainties, with that anchor's age, or
+// nil when they must be found afresh. It counts the evaluation and drops
+// the anchors that are too old or made for another spec.
+func (s *Sensitivities) reuse(spec *Spec, x, u *[nIn]float64, corr []uncert.Correlation, o *evalOut, defined *[NumFigures]bool, near bool) (*propagation, int) {
+	s.evals++
+	if !s.sameSpec(spec) {
+		s.Reset()
+		return nil, 0
+	}
+	maxAge := s.maxAge()
+	n := 0
+	for _, a := range s.anchors {
+		if s.evals-a.born <= maxAge {
+			s.anchors[n] = a
+			n++
+		}
+	}
+	s.anchors = s.anchors[:n]
 	alpha := s.alpha()
-	if !a.valid || alpha < 0 || near || a.age+1 > s.maxAge() || !a.sameSpec(spec) {
-		return nil
+	if alpha < 0 || near {
+		return nil, 0
 	}
-	if *defined != a.defined || o.poly != a.poly ||
-		o.in.Phase != a.phase[portIn] || o.out.Phase != a.phase[portOut] || o.iso.Phase != a.phase[portIso] {
-		return nil
-	}
-	for k := range NumFigures {
-		if finite(o.fig[k]) != a.finite[k] {
-			return nil
+	for i := range nIn {
+		if !finite(u[i]) || u[i] < 0 {
+			return nil, 0
 		}
 	}
 	tol := s.fixedTol()
-	for i := range nIn {
-		if !finite(u[i]) || u[i] < 0 || (u[i] > 0) != a.uPos[i] {
-			return nil
-		}
-		d := math.Abs(x[i] - a.x[i])
-		if u[i] > 0 {
-			if !(d <= alpha*u[i]) {
-				return nil
-			}
-		} else if !(d <= tol*math.Abs(a.x[i])) {
-			return nil
+	var best *anchor
+	bestD := math.Inf(1)
+	for ai := range s.anchors {
+		a := &s.anchors[ai]
+		if d := a.distance(x, u, o, defined, alpha, tol); d < bestD {
+			best, bestD = a, d
 		}
 	}
-	p := &propagation{sens: a.sens}
+	if best == nil {
+		return nil, 0
+	}
+	p := &propagation{sens: best.sens}
 	for k := range NumFigures {
-		p.ok[k] = a.finite[k]
+		p.ok[k] = best.finite[k]
 	}
 	p.combine(u, corr)
 	for k := range NumFigures {
 		if p.ok[k] && !finite(p.u[k]) {
-			return nil
+			return nil, 0
 		}
 	}
-	a.age++
-	return p
+	return p, s.evals - best.born
 }
 
-// store makes this fresh evaluation the anchor when its central
-// differences were clean, and forgets the anchor otherwise.
+// distance is the largest move of an uncertain input from the anchor in
+// units of α·u_i(x), at most 1, when the anchor qualifies for these inputs
+// and this nominal evaluation; +Inf when it does not.
+func (a *anchor) distance(x, u *[nIn]float64, o *evalOut, defined *[NumFigures]bool, alpha, tol float64) float64 {
+	inf := math.Inf(1)
+	if *defined != a.defined || o.poly != a.poly ||
+		o.in.Phase != a.phase[portIn] || o.out.Phase != a.phase[portOut] || o.iso.Phase != a.phase[portIso] {
+		return inf
+	}
+	for k := range NumFigures {
+		if finite(o.fig[k]) != a.finite[k] {
+			return inf
+		}
+	}
+	worst := 0.0
+	for i := range nIn {
+		if (u[i] > 0) != a.uPos[i] {
+			return inf
+		}
+		d := math.Abs(x[i] - a.x[i])
+		if u[i] == 0 {
+			if !(d <= tol*math.Abs(a.x[i])) {
+				return inf
+			}
+			continue
+		}
+		r := d / (alpha * u[i])
+		if !(r <= 1) {
+			return inf
+		}
+		worst = max(worst, r)
+	}
+	return worst
+}
+
+// store adds this fresh evaluation as an anchor when its central
+// differences were clean (the oldest anchor goes when there are too many).
 func (s *Sensitivities) store(spec *Spec, x, u *[nIn]float64, o *evalOut, defined *[NumFigures]bool, p *propagation, clean bool) {
-	s.a = anchor{}
-	if !clean {
+	if !clean || s.alpha() < 0 {
 		return
 	}
-	a := anchor{valid: true, spec: spec, specVal: *spec, x: *x, sens: p.sens, defined: *defined, poly: o.poly,
+	a := anchor{born: s.evals, x: *x, sens: p.sens, defined: *defined, poly: o.poly,
 		phase: [nPorts]thermo.Phase{o.in.Phase, o.out.Phase, o.iso.Phase}}
 	for i := range nIn {
 		a.uPos[i] = u[i] > 0
@@ -271,7 +339,13 @@ func (s *Sensitivities) store(spec *Spec, x, u *[nIn]float64, o *evalOut, define
 			}
 		}
 	}
-	s.a = a
+	if s.spec == nil {
+		s.spec, s.specVal = spec, *spec
+	}
+	if len(s.anchors) >= s.maxAnchors() {
+		s.anchors = append(s.anchors[:0], s.anchors[len(s.anchors)-s.maxAnchors()+1:]...)
+	}
+	s.anchors = append(s.anchors, a)
 }
 
 // propagation is the uncertainty of every figure of one evaluation: from
