@@ -20,15 +20,20 @@ const trustHint = "list the server's certificate files (DER or PEM) or a directo
 // opcuasrc (which key goes with which security mode), and that every
 // listed file or directory can be read and holds only certificates.
 // Relative entries are taken from the configuration file's directory and
-// replaced by that path, so the source reads what was checked. Problems
+// replaced by that absolute path, so the source reads what was checked. Problems
 // carry the line and column of the key or list entry. It reports whether
 // the trust settings were wrong (so that the source's own validation,
 // which would repeat the message, is skipped).
 func (cfg *Config) checkOPCUATrust(c *checker, item string, o *opcuasrc.Config) bool {
 	for i, p := range o.TrustedServerCertificates {
-		if p != "" && !filepath.IsAbs(p) && cfg.File != "" {
-			o.TrustedServerCertificates[i] = filepath.Join(filepath.Dir(cfg.File), p)
+		if strings.TrimSpace(p) == "" || filepath.IsAbs(p) || cfg.File == "" {
+			continue
 		}
+		p = filepath.Join(filepath.Dir(cfg.File), p)
+		if abs, err := filepath.Abs(p); err == nil {
+			p = abs // independent of a later change of working directory
+		}
+		o.TrustedServerCertificates[i] = p
 	}
 	// The source's validation applies the rules; here they get a position.
 	if err := o.Validate(); errors.Is(err, opcuasrc.ErrTrustSettings) {
