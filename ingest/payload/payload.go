@@ -113,10 +113,13 @@ type Decoder struct {
 	Precision time.Duration
 	intern    map[string]string
 	names     *Names // shared intern table; nil: intern is used
-	cache     *[1 << nameCacheBits]string
-	buf       []byte
-	fields    []lpField // line-protocol scratch
-	nameBuf   []byte
+	// noFastLine sends every line through the general parser (tests
+	// compare it with the fast path).
+	noFastLine bool
+	cache      *[1 << nameCacheBits]string
+	buf        []byte
+	fields     []lpField // line-protocol scratch
+	nameBuf    []byte
 }
 
 // NewDecoder returns a decoder for format f.

@@ -366,3 +366,63 @@ func TestSharedNames(t *testing.T) {
 		}
 	}
 }
+
+// FuzzLineFastPath is a differential test: the one-pass path for everyday
+// lines (fastLine) must decode every input exactly as the general parser
+// alone does (same samples, bit for bit, same errors), in each precision.
+func FuzzLineFastPath(f *testing.F) {
+	for _, s := range []string{
+		"m012.t3 value=250.25 1764583200123456789\n", "m012.t3 value=-0 1764583200123456789\r\nb value=1",
+		"a value=1", "a value=1 ", "a value=1 \t", "a value=1\t12", "a  value=7.5  12  ", "a value=1 9223372036854775807",
+		"a value=1 -9223372036854775808", "a value=1 +12", "a value=12345678901234567 1", "a value=1.5e3 1", "a value=.5",
+		"a value=1.", "a value=01 1", "a value=1,b=2 1", "a,t=x value=1", "a\\ b value=1", "a value=\"1\"", "a value=1i",
+		"a value=t", "a value=NaN", "a value= 1", "a value=", "a vALUE=1", "a valu=1", " a value=1", "#a value=1",
+		"plant,tag=T1.PT101 value=12.5 1764583200123456789\n", "a value=1,quality=\"bad\"", "a value=1 1 1",
+	} {
+		f.Add([]byte(s), uint8(0))
+	}
+	precs := []time.Duration{0, time.Nanosecond, time.Microsecond, time.Millisecond, time.Second}
+	f.Fuzz(func(t *testing.T, data []byte, p uint8) {
+		fast, slow := NewDecoder(LineProtocol), NewDecoder(LineProtocol)
+		fast.Precision = precs[int(p)%len(precs)]
+		slow.Precision = fast.Precision
+		slow.noFastLine = true
+		gf, ef := fast.Decode(data, recv, nil, nil)
+		gs, es := slow.Decode(data, recv, nil, nil)
+		if len(gf) != len(gs) || len(ef) != len(es) {
+			t.Fatalf("%q: fast path %d samples %d errors, general %d samples %d errors", data, len(gf), len(ef), len(gs), len(es))
+		}
+		for i := range gf {
+			a, b := gf[i], gs[i]
+			if math.Float64bits(a.Value) != math.Float64bits(b.Value) {
+				t.Fatalf("%q sample %d: value %v (fast) vs %v", data, i, a.Value, b.Value)
+			}
+			a.Value, b.Value = 0, 0
+			if a != b {
+				t.Fatalf("%q sample %d: %+v (fast) vs %+v", data, i, a, b)
+			}
+		}
+		for i := range ef {
+			if ef[i].Error() != es[i].Error() {
+				t.Fatalf("%q error %d: %v (fast) vs %v", data, i, ef[i], es[i])
+			}
+		}
+	})
+}
+
+// TestLineFastPathTakesEverydayLines: the lines the one-pass path exists
+// for are taken by it (otherwise the differential fuzz test above would
+// pass while comparing the general parser with itself).
+func TestLineFastPathTakesEverydayLines(t *testing.T) {
+	d := NewDecoder(LineProtocol)
+	for _, in := range []string{"m012.t3 value=250.25 1764583200123456789", "a value=-3", "T1.PT101  value=0.001  1 "} {
+		if _, ok := d.fastLine([]byte(in), recv); !ok {
+			t.Errorf("%q not taken by the fast path", in)
+		}
+	}
+	for _, in := range []string{"a,t=x value=1", "a value=1,q=2", "a value=1e3", "a value=1 \t", "a x=1"} {
+		if _, ok := d.fastLine([]byte(in), recv); ok {
+			t.Errorf("%q taken by the fast path", in)
+		}
+	}
+}
