@@ -408,7 +408,9 @@ func TestSecureUntrustedServerRefused(t *testing.T) {
 
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(16, met)
-	src, err := New(cfg, q, met, quietLog(), nil)
+	var logs bytes.Buffer
+	var logMu sync.Mutex
+	src, err := New(cfg, q, met, slogTo(&logs, &logMu), nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -431,6 +433,12 @@ func TestSecureUntrustedServerRefused(t *testing.T) {
 	case <-src.Connected():
 		t.Fatal("subscribed to an untrusted server")
 	default:
+	}
+	logMu.Lock()
+	logged := logs.String()
+	logMu.Unlock()
+	if !strings.Contains(logged, "not trusted") || !strings.Contains(logged, ue.SHA256) || !strings.Contains(logged, ue.SHA1) {
+		t.Errorf("refusal not logged with the thumbprints:\n%s", logged)
 	}
 	// The refusals are exported as a counter.
 	reg := prometheus.NewRegistry()
