@@ -40,8 +40,12 @@ type evaluator struct {
 	price     float64 // money per MWh of lost work; 0: no cost series
 	baseline  map[string]float64
 
-	mode    mode.Detector
-	steady  *steady.Detector
+	mode   mode.Detector
+	steady *steady.Detector
+	// sens carries the uncertainty sensitivities of the machine model from
+	// tick to tick (machine.EvaluateWith); a new evaluator (start, reload)
+	// starts without, and a stop forgets them.
+	sens    machine.Sensitivities
 	signals []string
 	rules   []*alert.Machine
 	trends  map[string]*trend.EWMA
@@ -190,6 +194,7 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 
 	var rec compute.Record
 	if md != mode.Running {
+		e.sens.Reset()
 		code := reasonNotRunning
 		if md == mode.Starting {
 			code = reasonStarting
@@ -197,7 +202,7 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 		rec = compute.Record{Time: now.UTC(), Site: e.site, Machine: e.id, MachineKind: e.kind.String(),
 			Quality: compute.QualityBad, Reasons: []string{code}}
 	} else {
-		res, err := machine.Evaluate(e.spec, &in)
+		res, err := machine.EvaluateWith(e.spec, &in, &e.sens)
 		if err != nil {
 			rec = machine.BadRecord(now, e.site, e.id, e.kind, err)
 		} else {
