@@ -69,7 +69,7 @@ func e2eFill(b *testing.B, js jetstream.JetStream, start time.Time, perMsg int) 
 // With acked, the consumer has AckAll policy and the subscriber sends a
 // cumulative ack every 256 messages and at the end: the server-side cost
 // of at-least-once delivery without any of our processing.
-func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int, acked bool) float64 {
+func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int, acked bool) rate {
 	e2eMsgs := int64(e2eSamples / perMsg)
 	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 	defer cancel()
@@ -84,10 +84,11 @@ func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int, acked bool) fl
 	var count atomic.Int64
 	done := make(chan struct{})
 	var t0 time.Time // set at the first message: setup is not timed
+	var c0 time.Duration
 	consCtx, err := cons.Consume(func(m jetstream.Msg) {
 		n := count.Add(1)
 		if n == 1 {
-			t0 = time.Now()
+			t0, c0 = time.Now(), processCPU()
 		}
 		if acked && (n%256 == 0 || n == e2eMsgs) {
 			_ = m.Ack()
@@ -104,17 +105,28 @@ func bareRun(b *testing.B, js jetstream.JetStream, n, perMsg int, acked bool) fl
 	case <-ctx.Done():
 		b.Fatalf("bare subscriber got %d of %d", count.Load(), e2eMsgs)
 	}
-	el := time.Since(t0)
+	el, cpu := time.Since(t0), processCPU()-c0
 	consCtx.Stop()
 	<-consCtx.Closed()
-	return float64(e2eSamples) / el.Seconds()
+	return rate{float64(e2eSamples) / el.Seconds(), cpu.Seconds() / el.Seconds()}
+}
+
+// rate is one timed run: samples per second, and the cores the whole
+// process (embedded server included) kept busy meanwhile.
+type rate struct{ samples, cores float64 }
+
+func rates(rs []rate) (samples, cores []float64) {
+	for _, r := range rs {
+		samples, cores = append(samples, r.samples), append(cores, r.cores)
+	}
+	return samples, cores
 }
 
 // pipelineRun runs the NATS source (JetStream durable, cumulative acks) ->
 // bounded queue -> engine (map, checks, window) -> snapshots every 100 ms
 // -> release (acks). The rate is timed until every sample was taken into a
 // window; then it waits (untimed) until every message was acknowledged.
-func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metrics) {
+func pipelineRun(b *testing.B, url string, n, perMsg int) (rate, *ingest.Metrics) {
 	return pipelineRunMode(b, url, n, perMsg, ModeJetStream, nil)
 }
 
@@ -122,7 +134,7 @@ func pipelineRun(b *testing.B, url string, n, perMsg int) (float64, *ingest.Metr
 // publish (called once the subscription is up) sends the stream; the rate
 // is timed from the first message until every sample was taken into a
 // window or dropped at the full queue (counted in QueueDropped).
-func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publish func()) (float64, *ingest.Metrics) {
+func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publish func()) (rate, *ingest.Metrics) {
 	e2eMsgs := uint64(e2eSamples / perMsg)
 	tm, err := tagmap.Compile(e2eTagMap())
 	if err != nil {
@@ -175,14 +187,14 @@ func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publi
 		}
 		time.Sleep(50 * time.Microsecond)
 	}
-	t0 := time.Now()
+	t0, c0 := time.Now(), processCPU()
 	for met.Accepted.Load()+met.Reason(ingest.ReasonQueueFull) < e2eSamples {
 		if time.Now().After(deadline) {
 			b.Fatalf("pipeline: accepted %d of %d", met.Accepted.Load(), e2eSamples)
 		}
 		time.Sleep(time.Millisecond)
 	}
-	el := time.Since(t0)
+	el, cpu := time.Since(t0), processCPU()-c0
 	// Every message must also be acknowledged (after the next tick and
 	// ack flush); not part of the timed throughput.
 	for mode == ModeJetStream && met.Acked.Load() < e2eMsgs {
@@ -195,7 +207,7 @@ func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publi
 	<-srcDone
 	<-engDone
 	<-relDone
-	return float64(met.Accepted.Load()) / el.Seconds(), met
+	return rate{float64(met.Accepted.Load()) / el.Seconds(), cpu.Seconds() / el.Seconds()}, met
 }
 
 // BenchmarkEndToEndJetStream compares, in the same run and on the same
@@ -224,7 +236,7 @@ func BenchmarkEndToEndJetStream(b *testing.B) {
 	for _, perMsg := range []int{1, 10, 100} {
 		b.Run(fmt.Sprintf("samples_per_msg=%d", perMsg), func(b *testing.B) {
 			e2eFill(b, js, time.Now(), perMsg)
-			var bare, bareAcked, ours []float64
+			var bare, bareAcked, ours []rate
 			b.ResetTimer()
 			for n := 0; n < b.N; n++ {
 				bare = append(bare, bareRun(b, js, n, perMsg, false))
@@ -236,11 +248,16 @@ func BenchmarkEndToEndJetStream(b *testing.B) {
 				}
 			}
 			b.StopTimer()
-			mb, mo := median(bare), median(ours)
+			bs, bc := rates(bare)
+			ps, pc := rates(ours)
+			as, _ := rates(bareAcked)
+			mb, mo := median(bs), median(ps)
 			b.ReportMetric(mb, "bare_samples/s")
-			b.ReportMetric(median(bareAcked), "bare_acked_samples/s")
+			b.ReportMetric(median(as), "bare_acked_samples/s")
 			b.ReportMetric(mo, "pipeline_samples/s")
 			b.ReportMetric(100*mo/mb, "pipeline_%_of_bare")
+			b.ReportMetric(median(bc), "bare_cores")
+			b.ReportMetric(median(pc), "pipeline_cores")
 		})
 	}
 }
@@ -317,7 +334,7 @@ func waitSubscribed(b *testing.B, src *Source, deadline time.Time) {
 // bareCoreRun counts the messages of the core stream with a plain nats.go
 // subscription (same pending limits as the pipeline) and returns the
 // sample rate from the first to the last message.
-func bareCoreRun(b *testing.B, url string, msgs [][]byte, perMsg int) float64 {
+func bareCoreRun(b *testing.B, url string, msgs [][]byte, perMsg int) rate {
 	nc, err := nats.Connect(url)
 	if err != nil {
 		b.Fatal(err)
@@ -327,10 +344,11 @@ func bareCoreRun(b *testing.B, url string, msgs [][]byte, perMsg int) float64 {
 	var count atomic.Int64
 	done := make(chan struct{})
 	var t0 time.Time
+	var c0 time.Duration
 	sub, err := nc.Subscribe("benchc.>", func(*nats.Msg) {
 		n := count.Add(1)
 		if n == 1 {
-			t0 = time.Now()
+			t0, c0 = time.Now(), processCPU()
 		}
 		if n == total {
 			close(done)
@@ -351,9 +369,9 @@ func bareCoreRun(b *testing.B, url string, msgs [][]byte, perMsg int) float64 {
 	case <-time.After(time.Minute):
 		b.Fatalf("bare core subscriber got %d of %d", count.Load(), total)
 	}
-	el := time.Since(t0)
+	el, cpu := time.Since(t0), processCPU()-c0
 	_ = sub.Unsubscribe()
-	return float64(total*int64(perMsg)) / el.Seconds()
+	return rate{float64(total*int64(perMsg)) / el.Seconds(), cpu.Seconds() / el.Seconds()}
 }
 
 // BenchmarkEndToEndCore is BenchmarkEndToEndJetStream for core NATS (at
@@ -369,7 +387,8 @@ func BenchmarkEndToEndCore(b *testing.B) {
 	for _, perMsg := range []int{1, 10, 100} {
 		b.Run(fmt.Sprintf("samples_per_msg=%d", perMsg), func(b *testing.B) {
 			msgs := corePayloads(perMsg)
-			var bare, ours, dropped []float64
+			var bare, ours []rate
+			var dropped []float64
 			b.ResetTimer()
 			for n := 0; n < b.N; n++ {
 				bare = append(bare, bareCoreRun(b, ns.url(), msgs, perMsg))
@@ -378,11 +397,15 @@ func BenchmarkEndToEndCore(b *testing.B) {
 				dropped = append(dropped, 100*float64(met.Reason(ingest.ReasonQueueFull))/e2eSamples)
 			}
 			b.StopTimer()
-			mb, mo := median(bare), median(ours)
+			bs, bc := rates(bare)
+			ps, pc := rates(ours)
+			mb, mo := median(bs), median(ps)
 			b.ReportMetric(mb, "bare_samples/s")
 			b.ReportMetric(mo, "pipeline_samples/s")
 			b.ReportMetric(100*mo/mb, "pipeline_%_of_bare")
 			b.ReportMetric(median(dropped), "dropped_%")
+			b.ReportMetric(median(bc), "bare_cores")
+			b.ReportMetric(median(pc), "pipeline_cores")
 		})
 	}
 }

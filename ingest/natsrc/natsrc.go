@@ -372,7 +372,7 @@ func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
 		}
 	}()
 	for _, subj := range s.cfg.Subjects {
-		sub, err := nc.Subscribe(subj, func(m *nats.Msg) { bt.add(m.Subject, m.Data, nil) })
+		sub, err := nc.Subscribe(subj, func(m *nats.Msg) { bt.add(m.Subject, m.Data, nil, nil) })
 		if err != nil {
 			return fmt.Errorf("nats subscribe %q: %w", subj, err)
 		}
@@ -498,41 +498,11 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 				}
 				seq = md.Sequence.Stream
 			}
-			tm := tracker.add(seq, m)
-			bt.add(m.Subject(), m.Data(), func(added []ingest.Sample) {
-				if len(added) == 0 {
-					// Nothing usable; a redelivery would fail the same way.
-					tm.Complete()
-					return
-				}
-				tm.ack.Init(len(added), tm)
-				for i := range added {
-					added[i].Ack = &tm.ack
-				}
-			})
+			bt.add(m.Subject(), m.Data(), tracker.add(seq, m), nil)
 			return
 		}
 		// Explicit policy: each message acknowledged on completion.
-		done := func() {
-			if err := m.Ack(); err != nil {
-				s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
-				return
-			}
-			if s.metrics != nil {
-				s.metrics.Acked.Add(1)
-			}
-		}
-		bt.add(m.Subject(), m.Data(), func(added []ingest.Sample) {
-			if len(added) == 0 {
-				// Nothing usable; a redelivery would fail the same way.
-				_ = m.Term()
-				return
-			}
-			ack := ingest.NewAck(len(added), done)
-			for i := range added {
-				added[i].Ack = ack
-			}
-		})
+		bt.add(m.Subject(), m.Data(), nil, m)
 	}, jetstream.PullMaxMessages(s.cfg.FetchBatch), jetstream.PullHeartbeat(2*time.Second),
 		jetstream.ConsumeErrHandler(func(_ jetstream.ConsumeContext, err error) {
 			s.limiter.Warn(s.clock.Now(), "consume", "jetstream consume", "err", err)
@@ -548,6 +518,20 @@ func (s *Source) runJetStream(ctx context.Context, nc *nats.Conn) error {
 		cc.Stop()
 	}
 	return nil
+}
+
+// explicitAck returns the completion of a message under ack policy
+// explicit: acknowledge it on its own.
+func (s *Source) explicitAck(m jetstream.Msg) func() {
+	return func() {
+		if err := m.Ack(); err != nil {
+			s.limiter.Warn(s.clock.Now(), "ack", "jetstream ack failed", "err", err)
+			return
+		}
+		if s.metrics != nil {
+			s.metrics.Acked.Add(1)
+		}
+	}
 }
 
 // Validate checks the settings as New will, without connecting (for
