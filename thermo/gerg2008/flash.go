@@ -291,7 +291,7 @@ func (m *Mixture) flashPX(pair thermo.Pair, p, target float64) (Properties, erro
 			x := xOf(T)
 			dx := -f / cp
 			if havePrev && x != xPrev {
-				if c := 1 - 0.5*dx*(cp-cpPrev)/(x-xPrev)/cp; c >= 0.5 && c <= 2 {
+				if c := 1 + 0.5*dx*(cp-cpPrev)/(x-xPrev)/cp; c >= 0.5 && c <= 2 {
 					dx /= c
 				}
 			}
