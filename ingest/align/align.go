@@ -148,6 +148,10 @@ type machine struct {
 	tracks  []int // ungrouped signal indices
 	groups  []int
 	pending []ackRun
+	// keys are the value keys, tracks then groups; uniqueKeys: no two
+	// alike (each value has its own map entry).
+	keys       []tagmap.Key
+	uniqueKeys bool
 }
 
 // Engine maps, checks and windows samples and builds snapshots. Its methods
@@ -162,6 +166,9 @@ type Engine struct {
 	machines []*machine
 	byName   map[string]*machine
 	sigMach  []*machine // machine of each signal (by Signal.Index), nil for site tags
+
+	vals, members []Value // scratch of Evaluate (under mu)
+	mapPath       bool    // tests: build every snapshot through its map
 }
 
 // New returns an engine. metrics and log may be nil.
@@ -199,6 +206,22 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 		}
 	}
 	sort.Slice(e.machines, func(i, j int) bool { return e.machines[i].name < e.machines[j].name })
+	for _, mc := range e.machines {
+		seen := map[tagmap.Key]bool{}
+		mc.uniqueKeys = true
+		for _, idx := range mc.tracks {
+			mc.keys = append(mc.keys, e.tracks[idx].sig.Key)
+		}
+		for _, gi := range mc.groups {
+			mc.keys = append(mc.keys, m.Groups[gi].Key)
+		}
+		for _, k := range mc.keys {
+			if seen[k] {
+				mc.uniqueKeys = false
+			}
+			seen[k] = true
+		}
+	}
 	e.sigMach = make([]*machine, len(m.Signals))
 	for _, s := range m.Signals {
 		if s.Machine != "" {
@@ -349,23 +372,11 @@ func (e *Engine) Evaluate(now time.Time) []*Snapshot {
 	}
 	out := make([]*Snapshot, 0, len(e.machines))
 	for _, mc := range e.machines {
-		snap := &Snapshot{Machine: mc.name, At: now, From: start, Values: map[tagmap.Key]Value{}}
-		for _, idx := range mc.tracks {
-			v := e.value(idx, start, now)
-			snap.Values[e.tracks[idx].sig.Key] = v
-		}
-		for _, gi := range mc.groups {
-			g := e.mapper.Groups[gi]
-			vals := make([]Value, len(g.Members))
-			for j, idx := range g.Members {
-				vals[j] = e.value(idx, start, now)
-			}
-			snap.Values[g.Key] = combine(g, vals)
-		}
-		e.skew(snap)
-		for _, v := range snap.Values {
-			snap.Quality = ingest.Worse(snap.Quality, v.Quality)
-			e.countReasons(v.Reasons & evalReasons)
+		var snap *Snapshot
+		if mc.uniqueKeys && !e.mapPath {
+			snap = e.snapshot(mc, start, now)
+		} else {
+			snap = e.snapshotMap(mc, start, now)
 		}
 		snap.acks, mc.pending = mc.pending, nil
 		out = append(out, snap)
@@ -377,6 +388,90 @@ func (e *Engine) Evaluate(now time.Time) []*Snapshot {
 		e.metrics.Snapshots.Add(uint64(len(out)))
 	}
 	return out
+}
+
+// snapshot builds the snapshot of a machine whose values all have
+// different keys: the values are computed, checked for skew and judged in
+// a reused slice, and the map is filled once at its final size.
+// snapshotMap is the general form (and the reference of the tests).
+func (e *Engine) snapshot(mc *machine, start, now time.Time) *Snapshot {
+	snap := &Snapshot{Machine: mc.name, At: now, From: start}
+	vals := e.vals[:0]
+	for _, idx := range mc.tracks {
+		vals = append(vals, e.value(idx, start, now))
+	}
+	for _, gi := range mc.groups {
+		g := e.mapper.Groups[gi]
+		members := e.members[:0]
+		for _, idx := range g.Members {
+			members = append(members, e.value(idx, start, now))
+		}
+		e.members = members
+		vals = append(vals, combine(g, members))
+	}
+	e.vals = vals
+	var lo, hi int64
+	n := 0
+	for i := range vals {
+		if vals[i].Newest.IsZero() {
+			continue
+		}
+		t := vals[i].Newest.UnixNano()
+		if n == 0 || t < lo {
+			lo = t
+		}
+		if n == 0 || t > hi {
+			hi = t
+		}
+		n++
+	}
+	if n >= 2 {
+		snap.Skew = time.Duration(hi - lo)
+		if e.cfg.MaxSkew > 0 && snap.Skew > e.cfg.MaxSkew {
+			snap.Reasons = snap.Reasons.Add(ingest.ReasonSkew)
+			e.metrics.Count(ingest.ReasonSkew, 1)
+			for i := range vals {
+				v := &vals[i]
+				if !v.Newest.IsZero() && time.Duration(hi-v.Newest.UnixNano()) > e.cfg.MaxSkew {
+					v.Reasons = v.Reasons.Add(ingest.ReasonSkew)
+					v.Quality = ingest.Worse(v.Quality, judge(v.Reasons))
+				}
+			}
+		}
+	}
+	snap.Values = make(map[tagmap.Key]Value, len(vals))
+	for i := range vals {
+		v := &vals[i]
+		snap.Quality = ingest.Worse(snap.Quality, v.Quality)
+		e.countReasons(v.Reasons & evalReasons)
+		snap.Values[mc.keys[i]] = *v
+		*v = Value{}
+	}
+	return snap
+}
+
+// snapshotMap builds a snapshot through its map (values of the same key:
+// the last one wins).
+func (e *Engine) snapshotMap(mc *machine, start, now time.Time) *Snapshot {
+	snap := &Snapshot{Machine: mc.name, At: now, From: start, Values: map[tagmap.Key]Value{}}
+	for _, idx := range mc.tracks {
+		v := e.value(idx, start, now)
+		snap.Values[e.tracks[idx].sig.Key] = v
+	}
+	for _, gi := range mc.groups {
+		g := e.mapper.Groups[gi]
+		vals := make([]Value, len(g.Members))
+		for j, idx := range g.Members {
+			vals[j] = e.value(idx, start, now)
+		}
+		snap.Values[g.Key] = combine(g, vals)
+	}
+	e.skew(snap)
+	for _, v := range snap.Values {
+		snap.Quality = ingest.Worse(snap.Quality, v.Quality)
+		e.countReasons(v.Reasons & evalReasons)
+	}
+	return snap
 }
 
 // prune removes points before from, keeping the newest of them (it holds
