@@ -27,7 +27,6 @@ package main
 import (
 	"bufio"
 	"bytes"
-	"container/heap"
 	"context"
 	"errors"
 	"flag"
@@ -46,6 +45,7 @@ import (
 	"sync/atomic"
 	"syscall"
 	"time"
+	"unsafe"
 
 	"github.com/exergywatch/exergywatch/compute"
 	"github.com/exergywatch/exergywatch/config"
@@ -159,8 +159,12 @@ func (l *lineReader) next() (line []byte, n int, tooLong bool, ok bool) {
 			return nil, l.n, false, false
 		}
 	}
-	b = bytes.TrimSuffix(b, []byte{'\n'})
-	b = bytes.TrimSuffix(b, []byte{'\r'})
+	if n := len(b); n > 0 && b[n-1] == '\n' {
+		b = b[:n-1]
+	}
+	if n := len(b); n > 0 && b[n-1] == '\r' {
+		b = b[:n-1]
+	}
 	return b, l.n, false, true
 }
 
@@ -221,13 +225,17 @@ func splitCSV(line []byte, dst [][]byte, scratch []byte) ([][]byte, []byte, bool
 }
 
 // parseTime reads RFC 3339 or Unix milliseconds (integer with up to six
-// decimals).
+// decimals). The common forms are read by hand (parseRFC3339Fast,
+// parseUnixMsFast); anything else takes the general path, which decides.
 func parseTime(b []byte) (time.Time, error) {
 	b = bytes.TrimSpace(b)
 	if len(b) == 0 {
 		return time.Time{}, errors.New("empty")
 	}
 	if bytes.IndexByte(b, 'T') < 0 && bytes.IndexByte(b, 't') < 0 {
+		if t, ok := parseUnixMsFast(b); ok {
+			return t, nil
+		}
 		s := string(b)
 		ip, frac, hasFrac := strings.Cut(s, ".")
 		ms, err := strconv.ParseInt(ip, 10, 64)
@@ -251,12 +259,13 @@ func parseTime(b []byte) (time.Time, error) {
 				ns = -ns
 			}
 		}
-		// Keep clear of int64 overflow in nanoseconds (about year 2262).
-		const lim = math.MaxInt64/int64(time.Millisecond) - 1
-		if ms > lim || ms < -lim {
+		if ms > unixMsLimit || ms < -unixMsLimit {
 			return time.Time{}, fmt.Errorf("%q: out of range", s)
 		}
 		return time.Unix(0, ms*int64(time.Millisecond)+ns).UTC(), nil
+	}
+	if t, ok := parseRFC3339Fast(b); ok {
+		return t, nil
 	}
 	t, err := time.Parse(time.RFC3339Nano, string(b))
 	if err != nil {
@@ -265,7 +274,139 @@ func parseTime(b []byte) (time.Time, error) {
 	return t.UTC(), nil
 }
 
+// unixMsLimit keeps Unix milliseconds clear of int64 overflow in
+// nanoseconds (about year 2262).
+const unixMsLimit = math.MaxInt64/int64(time.Millisecond) - 1
+
+// digits2 reads two ASCII digits.
+func digits2(b []byte) (int, bool) {
+	d0, d1 := b[0]-'0', b[1]-'0'
+	if d0 > 9 || d1 > 9 {
+		return 0, false
+	}
+	return int(d0)*10 + int(d1), true
+}
+
+// parseRFC3339Fast reads the canonical RFC 3339 form
+// YYYY-MM-DDTHH:MM:SS[.F{1,9}](Z|+hh:mm|-hh:mm) with every field in range
+// (the day checked against the month), without allocating. ok is false for
+// anything else, which the caller hands to time.Parse; for what it accepts
+// the result equals time.Parse(time.RFC3339Nano, ...).UTC()
+// (FuzzParseTimeFastPath checks both).
+func parseRFC3339Fast(b []byte) (time.Time, bool) {
+	if len(b) < 20 || b[4] != '-' || b[7] != '-' || b[10] != 'T' || b[13] != ':' || b[16] != ':' {
+		return time.Time{}, false
+	}
+	y1, ok1 := digits2(b[0:2])
+	y2, ok2 := digits2(b[2:4])
+	mo, ok3 := digits2(b[5:7])
+	d, ok4 := digits2(b[8:10])
+	h, ok5 := digits2(b[11:13])
+	mi, ok6 := digits2(b[14:16])
+	sec, ok7 := digits2(b[17:19])
+	if !(ok1 && ok2 && ok3 && ok4 && ok5 && ok6 && ok7) {
+		return time.Time{}, false
+	}
+	y := y1*100 + y2
+	if mo < 1 || mo > 12 || d < 1 || h > 23 || mi > 59 || sec > 59 {
+		return time.Time{}, false
+	}
+	days := [13]int{0, 31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31}[mo]
+	if mo == 2 && y%4 == 0 && (y%100 != 0 || y%400 == 0) {
+		days = 29
+	}
+	if d > days {
+		return time.Time{}, false
+	}
+	i := 19
+	ns := 0
+	if b[i] == '.' {
+		i++
+		j := i
+		for i < len(b) && b[i] >= '0' && b[i] <= '9' {
+			i++
+		}
+		n := i - j
+		if n < 1 || n > 9 {
+			return time.Time{}, false
+		}
+		for k := j; k < i; k++ {
+			ns = ns*10 + int(b[k]-'0')
+		}
+		for k := n; k < 9; k++ {
+			ns *= 10
+		}
+	}
+	off := 0
+	switch rest := b[i:]; {
+	case len(rest) == 1 && rest[0] == 'Z':
+	case len(rest) == 6 && (rest[0] == '+' || rest[0] == '-') && rest[3] == ':':
+		oh, ok1 := digits2(rest[1:3])
+		om, ok2 := digits2(rest[4:6])
+		if !ok1 || !ok2 || oh > 23 || om > 59 {
+			return time.Time{}, false
+		}
+		off = (oh*60 + om) * 60
+		if rest[0] == '-' {
+			off = -off
+		}
+	default:
+		return time.Time{}, false
+	}
+	t := time.Date(y, time.Month(mo), d, h, mi, sec, ns, time.UTC)
+	if off != 0 {
+		t = t.Add(-time.Duration(off) * time.Second)
+	}
+	return t, true
+}
+
+// parseUnixMsFast reads [-]D{1,13}[.D{1,6}] Unix milliseconds within the
+// general path's range without allocating; ok is false for anything else
+// (the general path decides).
+func parseUnixMsFast(b []byte) (time.Time, bool) {
+	neg := false
+	if b[0] == '-' {
+		neg = true
+		b = b[1:]
+	}
+	var ms int64
+	i := 0
+	for i < len(b) && b[i] >= '0' && b[i] <= '9' {
+		ms = ms*10 + int64(b[i]-'0')
+		i++
+	}
+	if i < 1 || i > 13 || ms > unixMsLimit {
+		return time.Time{}, false
+	}
+	var ns int64
+	if i < len(b) {
+		if b[i] != '.' {
+			return time.Time{}, false
+		}
+		i++
+		j := i
+		for i < len(b) && b[i] >= '0' && b[i] <= '9' {
+			ns = ns*10 + int64(b[i]-'0')
+			i++
+		}
+		n := i - j
+		if i != len(b) || n < 1 || n > 6 {
+			return time.Time{}, false
+		}
+		for k := n; k < 6; k++ {
+			ns *= 10
+		}
+	}
+	if neg {
+		ms, ns = -ms, -ns
+	}
+	return time.Unix(0, ms*int64(time.Millisecond)+ns).UTC(), true
+}
+
 func parseQualityField(b []byte) (ingest.Quality, bool) {
+	if string(b) == "good" {
+		return ingest.Good, true
+	}
 	switch strings.ToLower(string(bytes.TrimSpace(b))) {
 	case "", "good":
 		return ingest.Good, true
@@ -275,6 +416,16 @@ func parseQualityField(b []byte) (ingest.Quality, bool) {
 		return ingest.Bad, true
 	}
 	return 0, false
+}
+
+// parseFloatBytes is strconv.ParseFloat on b without copying b into a new
+// string: the string shares b's memory for the duration of the call only
+// (the error, which would keep it, is not kept by the caller).
+func parseFloatBytes(b []byte) (float64, error) {
+	if len(b) == 0 {
+		return strconv.ParseFloat("", 64)
+	}
+	return strconv.ParseFloat(unsafe.String(&b[0], len(b)), 64)
 }
 
 // csvReader reads one CSV file.
@@ -367,7 +518,7 @@ func (c *csvReader) next() (s ingest.Sample, ok bool, err error) {
 			c.rej.add(rowError{File: c.name, Line: n, Reason: rejTooOld, Detail: t.Format(time.RFC3339)})
 			continue
 		}
-		v, err := strconv.ParseFloat(string(bytes.TrimSpace(c.fields[c.col.value])), 64)
+		v, err := parseFloatBytes(bytes.TrimSpace(c.fields[c.col.value]))
 		if err != nil {
 			c.rej.add(rowError{File: c.name, Line: n, Reason: rejValue, Detail: fmt.Sprintf("%q", c.fields[c.col.value])})
 			continue
@@ -458,43 +609,114 @@ type rowSource interface {
 	next() (ingest.Sample, bool, error)
 }
 
-// sampleHeap orders samples by time, then by input order.
-type seqSample struct {
-	s   ingest.Sample
-	t   int64
-	seq uint64
-	src int
+// mergeKey orders buffered samples by time, then by input order (seq is
+// unique within one heap); slot says where the sample is held.
+type mergeKey struct {
+	t    int64 // source time, Unix ns
+	seq  uint64
+	slot int
 }
 
-type sampleHeap []seqSample
-
-func (h sampleHeap) Len() int { return len(h) }
-func (h sampleHeap) Less(i, j int) bool {
-	if h[i].t != h[j].t {
-		return h[i].t < h[j].t
+func (a mergeKey) less(b mergeKey) bool {
+	if a.t != b.t {
+		return a.t < b.t
 	}
-	return h[i].seq < h[j].seq
+	return a.seq < b.seq
 }
-func (h sampleHeap) Swap(i, j int) { h[i], h[j] = h[j], h[i] }
-func (h *sampleHeap) Push(x any)   { *h = append(*h, x.(seqSample)) }
-func (h *sampleHeap) Pop() any {
-	old := *h
-	x := old[len(old)-1]
-	*h = old[:len(old)-1]
-	return x
+
+// keyHeap is a binary min-heap of merge keys. It holds no samples (they stay
+// in their slot), so sifting moves 24 bytes without pointers.
+type keyHeap []mergeKey
+
+func (h *keyHeap) push(k mergeKey) {
+	*h = append(*h, k)
+	q := *h
+	i := len(q) - 1
+	for i > 0 {
+		p := (i - 1) / 2
+		if !q[i].less(q[p]) {
+			break
+		}
+		q[i], q[p] = q[p], q[i]
+		i = p
+	}
+}
+
+func (h *keyHeap) pop() mergeKey {
+	q := *h
+	top := q[0]
+	n := len(q) - 1
+	q[0] = q[n]
+	q = q[:n]
+	for i := 0; ; {
+		l := 2*i + 1
+		if l >= n {
+			break
+		}
+		m := l
+		if r := l + 1; r < n && q[r].less(q[l]) {
+			m = r
+		}
+		if !q[m].less(q[i]) {
+			break
+		}
+		q[i], q[m] = q[m], q[i]
+		i = m
+	}
+	*h = q
+	return top
 }
 
 // reorder holds up to reorderDepth samples of one file and releases the
-// oldest, sorting out local disorder.
+// oldest (by time, then file order), sorting out local disorder. Samples
+// that arrive in order (the usual case) wait in a FIFO ring; only samples
+// older than the newest one held go to a heap. Releasing the smaller of
+// the ring's front and the heap's top is the same as releasing the minimum
+// of one heap over everything held.
 type reorder struct {
 	src  rowSource
-	h    sampleHeap
 	seq  uint64
 	done bool
+
+	ring       []ingest.Sample // FIFO, capacity reorderDepth
+	ringKey    []mergeKey
+	head, n    int
+	heap       keyHeap
+	slab       []ingest.Sample // heap samples by slot
+	free       []int
+	lastT      int64 // time of the newest sample in the ring
+	lastInRing bool
+}
+
+func (r *reorder) held() int { return r.n + len(r.heap) }
+
+func (r *reorder) hold(s ingest.Sample) {
+	if r.ring == nil {
+		r.ring = make([]ingest.Sample, reorderDepth)
+		r.ringKey = make([]mergeKey, reorderDepth)
+	}
+	r.seq++
+	k := mergeKey{t: s.SourceTime.UnixNano(), seq: r.seq}
+	if r.n == 0 || k.t >= r.lastT {
+		i := (r.head + r.n) % reorderDepth
+		r.ring[i], r.ringKey[i] = s, k
+		r.n++
+		r.lastT = k.t
+		return
+	}
+	if len(r.free) > 0 {
+		k.slot = r.free[len(r.free)-1]
+		r.free = r.free[:len(r.free)-1]
+		r.slab[k.slot] = s
+	} else {
+		k.slot = len(r.slab)
+		r.slab = append(r.slab, s)
+	}
+	r.heap.push(k)
 }
 
 func (r *reorder) next() (ingest.Sample, bool, error) {
-	for !r.done && len(r.h) < reorderDepth {
+	for !r.done && r.held() < reorderDepth {
 		s, ok, err := r.src.next()
 		if err != nil {
 			return s, false, err
@@ -503,22 +725,33 @@ func (r *reorder) next() (ingest.Sample, bool, error) {
 			r.done = true
 			break
 		}
-		r.seq++
-		heap.Push(&r.h, seqSample{s: s, t: s.SourceTime.UnixNano(), seq: r.seq})
+		r.hold(s)
 	}
-	if len(r.h) == 0 {
-		return ingest.Sample{}, false, nil
+	switch {
+	case r.n > 0 && (len(r.heap) == 0 || r.ringKey[r.head].less(r.heap[0])):
+		s := r.ring[r.head]
+		r.ring[r.head] = ingest.Sample{}
+		r.head = (r.head + 1) % reorderDepth
+		r.n--
+		return s, true, nil
+	case len(r.heap) > 0:
+		k := r.heap.pop()
+		s := r.slab[k.slot]
+		r.slab[k.slot] = ingest.Sample{}
+		r.free = append(r.free, k.slot)
+		return s, true, nil
 	}
-	x := heap.Pop(&r.h).(seqSample)
-	return x.s, true, nil
+	return ingest.Sample{}, false, nil
 }
 
-// merger merges several time-ordered streams into one.
+// merger merges several time-ordered streams into one: by time, then by
+// the order in which the samples were pulled from their streams.
 type merger struct {
-	srcs []rowSource
-	h    sampleHeap
-	init bool
-	seq  uint64
+	srcs  []rowSource
+	heads []ingest.Sample // the pulled sample of each stream, by stream
+	h     keyHeap
+	init  bool
+	seq   uint64
 }
 
 func (m *merger) pull(i int) error {
@@ -527,13 +760,15 @@ func (m *merger) pull(i int) error {
 		return err
 	}
 	m.seq++
-	heap.Push(&m.h, seqSample{s: s, t: s.SourceTime.UnixNano(), seq: m.seq, src: i})
+	m.heads[i] = s
+	m.h.push(mergeKey{t: s.SourceTime.UnixNano(), seq: m.seq, slot: i})
 	return nil
 }
 
 func (m *merger) next() (ingest.Sample, bool, error) {
 	if !m.init {
 		m.init = true
+		m.heads = make([]ingest.Sample, len(m.srcs))
 		for i := range m.srcs {
 			if err := m.pull(i); err != nil {
 				return ingest.Sample{}, false, err
@@ -543,11 +778,12 @@ func (m *merger) next() (ingest.Sample, bool, error) {
 	if len(m.h) == 0 {
 		return ingest.Sample{}, false, nil
 	}
-	x := heap.Pop(&m.h).(seqSample)
-	if err := m.pull(x.src); err != nil {
+	k := m.h.pop()
+	s := m.heads[k.slot]
+	if err := m.pull(k.slot); err != nil {
 		return ingest.Sample{}, false, err
 	}
-	return x.s, true, nil
+	return s, true, nil
 }
 
 // ---- the replay driver ----------------------------------------------------
