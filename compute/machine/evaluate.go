@@ -70,7 +70,7 @@ func evaluate(spec *Spec, in *Inputs, full bool) (res *Result, flashes int, err 
 }
 
 // evaluateR is the evaluation; cache (nil: none) supplies and keeps reused
-// sensitivities (see Sensitivities). An error forgets the cache's anchor.
+// sensitivities (see Sensitivities). An error forgets the cache's anchors.
 func evaluateR(spec *Spec, in *Inputs, full bool, cache *Sensitivities, flashes *int) (*Result, error) {
 	res, err := evaluateC(spec, in, full, cache, flashes)
 	if err != nil && cache != nil {

@@ -179,11 +179,13 @@ func (s *Sensitivities) maxAnchors() int {
 
 // EvaluateWith is Evaluate with sensitivity coefficients reused from an
 // earlier evaluation of the same machine at a nearby operating point (see
-// Sensitivities). Figure values, states, quality and reasons are those
-// Evaluate gives for the same inputs; only the U95s (and Sensitivity, the
-// dominant-input notes) may come from the anchor's sensitivities, which
-// Result.SensitivityAge tells. Errors are Evaluate's; an error also forgets
-// the anchor. A nil cache makes it Evaluate.
+// Sensitivities). Figure values and states are bitwise those Evaluate
+// gives for the same inputs; the U95s, Sensitivity and the dominant-input
+// notes may come from an anchor's sensitivities, which
+// Result.SensitivityAge tells (so may a grade that compares a figure with
+// its U95, where the two U95s straddle the threshold). Errors are
+// Evaluate's; an error also forgets all anchors. A nil cache makes it
+// Evaluate.
 func EvaluateWith(spec *Spec, in *Inputs, cache *Sensitivities) (*Result, error) {
 	var flashes int
 	return evaluateR(spec, in, false, cache, &flashes)
