@@ -19,7 +19,8 @@ const (
 // density solves p(T, D) = p for the gas (vapour-like) root. p is in kPa,
 // T is held in tc; the result is in mol/dm3.
 //
-// Newton's method in ln D starts from the truncated virial equation
+// Newton's method in ln D (with Halley's correction, see densitySolve)
+// starts from the truncated virial equation
 // Z = 1 + B D (or the ideal gas D = p/(RT) if that has no root) and is kept
 // inside a bracket [lo, hi]: points with f = p(D) - p < 0 and dp/dD > 0 raise
 // lo; points with f > 0, or with dp/dD <= 0 (mechanically unstable: the gas

@@ -241,14 +241,14 @@ func (m *Mixture) ideal(T, D float64) (a0, a0t, a0tt float64) {
 			// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for
 			// large u: u/sinh u = 2 u em/(1 - em2).
 			q := 1 / (1 - em2)
-			h0 += c.coef * (u + math.Log1p(-em2) - ln2)
+			h0 += c.coef * (u + flog1p(-em2) - ln2)
 			h1 += c.coef * u * (1 + em2) * q
 			r := 2 * u * em * q
 			h2 += c.coef * r * r
 		} else {
 			// -ln cosh u, -u tanh u, (u/cosh u)^2.
 			q := 1 / (1 + em2)
-			h0 -= c.coef * (u + math.Log1p(em2) - ln2)
+			h0 -= c.coef * (u + flog1p(em2) - ln2)
 			h1 -= c.coef * u * (1 - em2) * q
 			r := 2 * u * em * q
 			h2 += c.coef * r * r

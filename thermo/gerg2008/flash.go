@@ -188,8 +188,11 @@ func (m *Mixture) state(pr *Properties) (thermo.State, error) {
 // returns and rejects such states; it costs about 1-3 ms of CPU per call
 // instead of about 10 µs (11-component gas).
 //
-// The (p, h) and (p, s) flashes run Newton's method on T with dh/dT = cp
-// (ds/dT = cp/T) inside a bracket, to |dT|/T < 1e-11.
+// The (p, h) and (p, s) flashes iterate on T inside a bracket with
+// dh/dT = cp (ds/d ln T = cp): Newton steps in T (p,h) or ln T (p,s), with a
+// Halley correction whose curvature is the secant of cp between iterates;
+// each density solve starts on the isobar's tangent from the previous
+// state. They stop when the Newton step is below 1e-11 T.
 func (m *Mixture) Flash(pair thermo.Pair, a, b float64) (thermo.State, error) {
 	switch pair {
 	case thermo.PT:
