@@ -156,38 +156,45 @@ func (s *scanner) num() (span, bool) {
 	if s.b[s.i] == '-' {
 		s.i++
 	}
-	digits := func() int {
-		n := 0
-		for s.i < len(s.b) && s.b[s.i] >= '0' && s.b[s.i] <= '9' {
-			s.i++
-			n++
-		}
-		return n
-	}
 	if s.i >= len(s.b) {
 		return span{}, false
 	}
 	if s.b[s.i] == '0' {
 		s.i++
-	} else if digits() == 0 {
+	} else if j := skipDigits(s.b, s.i); j == s.i {
 		return span{}, false
+	} else {
+		s.i = j
 	}
 	if s.i < len(s.b) && s.b[s.i] == '.' {
 		s.i++
-		if digits() == 0 {
+		j := skipDigits(s.b, s.i)
+		if j == s.i {
 			return span{}, false
 		}
+		s.i = j
 	}
 	if s.i < len(s.b) && (s.b[s.i] == 'e' || s.b[s.i] == 'E') {
 		s.i++
 		if s.i < len(s.b) && (s.b[s.i] == '+' || s.b[s.i] == '-') {
 			s.i++
 		}
-		if digits() == 0 {
+		j := skipDigits(s.b, s.i)
+		if j == s.i {
 			return span{}, false
 		}
+		s.i = j
 	}
 	return span{k: kNumber, start: start, end: s.i}, true
+}
+
+// skipDigits returns the index of the first byte at or after i that is not
+// an ASCII digit.
+func skipDigits(b []byte, i int) int {
+	for i < len(b) && b[i]-'0' <= 9 {
+		i++
+	}
+	return i
 }
 
 func (s *scanner) str() (span, bool) {
@@ -490,15 +497,29 @@ func (d *Decoder) jsonTime(data []byte, sp span) (time.Time, error) {
 		return t, nil
 	case kNumber:
 		raw := data[sp.start:sp.end]
-		ms, err := strconv.ParseFloat(string(raw), 64)
-		if err != nil || math.IsNaN(ms) || math.Abs(ms) > maxAbsMillis {
-			return time.Time{}, fmt.Errorf("%w: %s is not RFC 3339 text or Unix milliseconds", ErrBadTime, truncate(raw))
+		// Whole milliseconds (the usual form) need no float arithmetic:
+		// below 1e15 in magnitude they are what the float path gives
+		// exactly (ParseFloat is exact there and the split into seconds
+		// and nanoseconds is integral).
+		if len(raw) <= 17 {
+			if n, ok := parseInt64(raw); ok && n <= maxAbsMillis && n >= -maxAbsMillis {
+				return time.UnixMilli(n).UTC(), nil
+			}
 		}
-		sec := math.Floor(ms / 1000)
-		ns := math.Round((ms - sec*1000) * 1e6)
-		return time.Unix(int64(sec), int64(ns)).UTC(), nil
+		return millisFloat(raw)
 	}
 	return time.Time{}, fmt.Errorf("%w: ts must be RFC 3339 text or Unix milliseconds", ErrBadTime)
+}
+
+// millisFloat reads Unix milliseconds with a fraction (or an exponent).
+func millisFloat(raw []byte) (time.Time, error) {
+	ms, err := strconv.ParseFloat(string(raw), 64)
+	if err != nil || math.IsNaN(ms) || math.Abs(ms) > maxAbsMillis {
+		return time.Time{}, fmt.Errorf("%w: %s is not RFC 3339 text or Unix milliseconds", ErrBadTime, truncate(raw))
+	}
+	sec := math.Floor(ms / 1000)
+	ns := math.Round((ms - sec*1000) * 1e6)
+	return time.Unix(int64(sec), int64(ns)).UTC(), nil
 }
 
 func truncate(b []byte) string {

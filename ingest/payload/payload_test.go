@@ -1,6 +1,7 @@
 package payload
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -425,4 +426,43 @@ func TestLineFastPathTakesEverydayLines(t *testing.T) {
 			t.Errorf("%q taken by the fast path", in)
 		}
 	}
+}
+
+// FuzzJSONWholeMillis: a "ts" of whole Unix milliseconds takes the integer
+// path; it must give the instant (and error) the float path gives.
+func FuzzJSONWholeMillis(f *testing.F) {
+	for _, n := range []int64{0, 1, -1, 999, -999, 1000, -1001, 1764583200123, -1764583200123, 1e15, -1e15, 1e15 + 1, -1e15 - 1, math.MaxInt64, math.MinInt64} {
+		f.Add(n)
+	}
+	f.Fuzz(func(t *testing.T, n int64) {
+		raw := strconv.FormatInt(n, 10)
+		d := NewDecoder(JSON)
+		got, gerr := d.jsonTime([]byte(raw), span{k: kNumber, start: 0, end: len(raw)})
+		want, werr := millisFloat([]byte(raw))
+		if (gerr == nil) != (werr == nil) || got != want {
+			t.Fatalf("ts %s: integer path %v %v, float path %v %v", raw, got, gerr, want, werr)
+		}
+	})
+}
+
+// FuzzJSONScannerGrammar: the scanner accepts exactly what encoding/json's
+// json.Valid accepts (RFC 8259), apart from nesting deeper than maxDepth,
+// which only the scanner refuses.
+func FuzzJSONScannerGrammar(f *testing.F) {
+	for _, s := range []string{`0`, `-0`, `-`, `01`, `1.`, `.5`, `1e`, `1e+`, `1E-7`, `-12.5e+3`, `[1,-2.0,3e4]`, `{"a":-}`,
+		`{"tag":"a","value":1.5}`, `"\u00e9\ud83d\ude00"`, `[`, `[[[[]]]]`, `{"a":[true,false,null]}`, ` 1 `, `1 2`} {
+		f.Add([]byte(s))
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		s := &scanner{b: data}
+		_, ok := s.value(0)
+		s.ws()
+		ours := ok && s.i == len(data)
+		if want := json.Valid(data); ours != want {
+			if !ours && bytes.Count(data, []byte("["))+bytes.Count(data, []byte("{")) > maxDepth {
+				return
+			}
+			t.Fatalf("%q: scanner says valid=%v, json.Valid %v", data, ours, want)
+		}
+	})
 }
