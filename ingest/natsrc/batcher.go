@@ -102,6 +102,9 @@ func newBatcher(s *Source, put func([]ingest.Sample)) *batcher {
 // acknowledgement; both nil for core NATS. After stop the message is
 // ignored (JetStream redelivers it).
 func (b *batcher) add(subject string, data []byte, tm *tracked, em jetstream.Msg) {
+	if b.s.metrics != nil {
+		b.s.metrics.Messages.Add(1)
+	}
 	b.mu.Lock()
 	defer b.mu.Unlock()
 	if b.closed {

@@ -389,11 +389,9 @@ func (s *Source) runCore(ctx context.Context, nc *nats.Conn) error {
 }
 
 // decodeInto decodes one message, appending its samples to dst, counting
-// and logging failures (once per tag, or subject, per minute).
+// and logging failures (once per tag, or subject, per minute). The caller
+// counts the message (Metrics.Messages).
 func (s *Source) decodeInto(dec *payload.Decoder, subject string, data []byte, now time.Time, dst []ingest.Sample) []ingest.Sample {
-	if s.metrics != nil {
-		s.metrics.Messages.Add(1)
-	}
 	dst, errs := dec.Decode(data, now, dst, nil)
 	if len(errs) > 0 {
 		if s.metrics != nil {
