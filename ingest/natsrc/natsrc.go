@@ -19,6 +19,11 @@
 //     unacknowledged, so the server redelivers it after AckWait;
 //     redelivered samples already in the window are counted as duplicates.
 //
+// Decoding is off the NATS callback: the callback appends each message to
+// a job of about BatchSamples samples, GOMAXPROCS workers decode jobs in
+// parallel, and the decoded batches enter the ingest queue in arrival
+// order, one queue entry per job (see batcher).
+//
 // The connection reconnects forever. The reconnect buffer holds outgoing
 // data while the link is down; for this subscriber that is the
 // acknowledgements, so it is sized to hold MaxAckPending acknowledgements
@@ -84,9 +89,11 @@ type Config struct {
 	ReconnectWait time.Duration `yaml:"reconnect_wait"` // default 1 s
 	// ReconnectBufferBytes: default max(1 MiB, 128 B * MaxAckPending).
 	ReconnectBufferBytes int `yaml:"reconnect_buffer_bytes"`
-	// BatchSamples: samples gathered from several messages into one queue
-	// entry (default 1024); BatchLinger: longest wait before a partial
-	// batch is handed on (default 5 ms).
+	// BatchSamples: samples gathered from several messages into one decode
+	// job and queue entry (default 1024; a job also ends at BatchSamples
+	// messages, and the sample count is estimated from the payload bytes
+	// per sample seen so far); BatchLinger: longest wait before a partial
+	// job is handed on (default 5 ms).
 	BatchSamples int           `yaml:"batch_samples"`
 	BatchLinger  time.Duration `yaml:"batch_linger"`
 	// Core subscription pending limits (slow-consumer protection).
