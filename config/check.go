@@ -212,8 +212,9 @@ func (cfg *Config) checkSinks(c *checker) {
 			c.add(item+".kind", fmt.Sprintf("unknown sink kind %q", s.Kind), "use influxdb, nats or store")
 			continue
 		}
+		cfg.checkSinkSecrets(c, item, s)
 		if err != nil {
-			c.add(item+"."+s.Kind, err.Error(), "")
+			cfg.addNode(c, item+"."+s.Kind, err.Error(), "")
 		}
 	}
 	cfg.Fanout.Defaults()

@@ -317,8 +317,9 @@ func Parse(file string, data []byte) (*Config, error) {
 var ErrSecret = errors.New("secret not available")
 
 // ResolveSecrets replaces "env:NAME" and "file:/path" references in the
-// credential fields of sources with their values. Literal credentials in
-// the file were refused by the checks.
+// credential fields of sources and sinks (see Sink.SecretFields) with their
+// values. Literal credentials in the file were refused by the checks.
+// Errors name the source or sink and the reference, never a value.
 func (c *Config) ResolveSecrets() error {
 	for i := range c.Sources {
 		s := &c.Sources[i]
@@ -340,7 +341,7 @@ func (c *Config) ResolveSecrets() error {
 			*f = sec.Value()
 		}
 	}
-	return nil
+	return c.resolveSinkSecrets()
 }
 
 func isSecretRef(s string) bool {

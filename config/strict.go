@@ -6,6 +6,7 @@ import (
 	"reflect"
 	"sort"
 	"strings"
+	"time"
 
 	"gopkg.in/yaml.v3"
 )
@@ -68,6 +69,8 @@ type strictChecker struct {
 }
 
 var unmarshalerType = reflect.TypeOf((*yaml.Unmarshaler)(nil)).Elem()
+
+var durationType = reflect.TypeOf(time.Duration(0))
 
 func (c *strictChecker) add(n *yaml.Node, item, msg, hint string) {
 	p := &Problem{File: c.file, Item: item, Msg: msg, Hint: hint}
@@ -181,7 +184,24 @@ func (c *strictChecker) check(n *yaml.Node, t reflect.Type, item string) {
 	default:
 		if n.Kind != yaml.ScalarNode {
 			c.add(n, item, fmt.Sprintf("expected a single value, found %s", kindName(n)), "")
+			return
 		}
+		if t == durationType {
+			c.checkDuration(n, item)
+		}
+	}
+}
+
+// checkDuration checks a time.Duration value (written like "5s", "250ms",
+// "720h") so that a bare number or a negative span is reported with its
+// position and a hint, not as a decoder type error.
+func (c *strictChecker) checkDuration(n *yaml.Node, item string) {
+	v, err := time.ParseDuration(strings.TrimSpace(n.Value))
+	switch {
+	case err != nil || n.ShortTag() != "!!str": // a bare number, even 0, has no unit
+		c.add(n, item, fmt.Sprintf("%q is not a duration", n.Value), "write a number with a unit: ms, s, m or h, e.g. 5s, 250ms or 720h")
+	case v < 0:
+		c.add(n, item, fmt.Sprintf("duration %q is negative", n.Value), "use a positive duration")
 	}
 }
 
@@ -219,6 +239,17 @@ func suggest(key string, fields map[string]reflect.Type) string {
 	}
 	if best != "" && bestD <= 2 {
 		return fmt.Sprintf("did you mean %q?", best)
+	}
+	// A key with a unit or secret-source suffix (flush_interval_ms,
+	// retention_hours, token_env) names a key written without it.
+	for _, k := range names {
+		switch rest, ok := strings.CutPrefix(strings.ToLower(key), k+"_"); {
+		case !ok:
+		case rest == "ms" || rest == "s" || rest == "h" || rest == "hours" || rest == "days":
+			return fmt.Sprintf("did you mean %q? write a duration with its unit, e.g. %s: 5s, 250ms or 720h", k, k)
+		case rest == "env" || rest == "file":
+			return fmt.Sprintf("did you mean %q? write %s: env:VARIABLE_NAME or %s: file:/path/to/secret", k, k, k)
+		}
 	}
 	return "known keys here: " + strings.Join(names, ", ")
 }

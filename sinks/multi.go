@@ -19,9 +19,9 @@ type MultiConfig struct {
 	// sink's queue is full, new items for that sink are dropped and counted;
 	// the other sinks still get them. Default 4096.
 	QueueLen int `yaml:"queue_len"`
-	// WriteTimeoutMS bounds one write to a child sink (milliseconds).
-	// Default 30000.
-	WriteTimeoutMS int `yaml:"write_timeout_ms"`
+	// WriteTimeout bounds one write to a child sink (a duration such as
+	// 30s). Default 30 s.
+	WriteTimeout time.Duration `yaml:"write_timeout"`
 }
 
 // Defaults fills zero fields with defaults.
@@ -29,8 +29,8 @@ func (c *MultiConfig) Defaults() {
 	if c.QueueLen == 0 {
 		c.QueueLen = 4096
 	}
-	if c.WriteTimeoutMS == 0 {
-		c.WriteTimeoutMS = 30000
+	if c.WriteTimeout == 0 {
+		c.WriteTimeout = 30 * time.Second
 	}
 }
 
@@ -39,8 +39,8 @@ func (c MultiConfig) Validate() error {
 	if c.QueueLen < 1 || c.QueueLen > 1<<22 {
 		return fmt.Errorf("sinks: queue_len %d out of range: set it between 1 and 4194304", c.QueueLen)
 	}
-	if c.WriteTimeoutMS < 1 {
-		return fmt.Errorf("sinks: write_timeout_ms %d must be at least 1", c.WriteTimeoutMS)
+	if c.WriteTimeout < time.Millisecond {
+		return fmt.Errorf("sinks: write_timeout %v must be at least 1ms", c.WriteTimeout)
 	}
 	return nil
 }
@@ -148,7 +148,7 @@ func NewMulti(cfg MultiConfig, logger *slog.Logger, sinks ...Named) (*Multi, err
 
 func (m *Multi) work(c *child) {
 	defer close(c.done)
-	timeout := time.Duration(m.cfg.WriteTimeoutMS) * time.Millisecond
+	timeout := m.cfg.WriteTimeout
 	for it := range c.q {
 		if m.runCtx.Err() != nil {
 			// Close gave up waiting: what is left is lost, and counted.

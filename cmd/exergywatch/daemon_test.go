@@ -436,7 +436,7 @@ func TestReloadAllOrNothing(t *testing.T) {
 	os.Unsetenv("EXW_TEST_TOKEN_NOT_SET")
 	tr := firingTree(t, ns.ClientURL(), dir)
 	sink := influxSink("http://127.0.0.1:9", filepath.Join(dir, "spool"))
-	sink["influxdb"].(map[string]any)["token_env"] = "EXW_TEST_TOKEN_NOT_SET"
+	sink["influxdb"].(map[string]any)["token"] = "env:EXW_TEST_TOKEN_NOT_SET"
 	tr.addSink(sink)
 	tr.write(t, dir, "exergywatch.yaml")
 	reload <- struct{}{}
@@ -791,7 +791,7 @@ func TestRunStopsCleanly(t *testing.T) {
 	dir := t.TempDir()
 	tr := fastTree(t, ns.ClientURL(), dir)
 	tr.addSink(influxSink(vm.URL, filepath.Join(dir, "spool")))
-	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"url": ns.ClientURL()}})
+	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"urls": []string{ns.ClientURL()}}})
 	listen := freePort(t)
 	tr.set(t, "status.listen", listen)
 	cfgPath := tr.write(t, dir, "exergywatch.yaml")
@@ -1056,7 +1056,7 @@ func TestBadInputThroughDaemon(t *testing.T) {
 	dir := t.TempDir()
 	tr := fastTree(t, ns.ClientURL(), dir)
 	tr.addSink(influxSink(vm.URL, filepath.Join(dir, "spool")))
-	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"url": ns.ClientURL()}})
+	tr.addSink(map[string]any{"name": "bus", "kind": "nats", "nats": map[string]any{"urls": []string{ns.ClientURL()}}})
 	tm := tr["tag_map"].(map[string]any)
 	delete(tm, "site_pressure")
 	tm["tags"] = append(tm["tags"].([]any), map[string]any{"tag": "QM.SITE.PB01", "quantity": "p", "unit": "kPa"})

@@ -86,9 +86,22 @@ func TestDeployExampleConfigs(t *testing.T) {
 					envs = append(envs, strings.TrimPrefix(s.OPCUA.Password, "env:"))
 				}
 			}
+			for i := range cfg.Sinks {
+				for _, f := range cfg.Sinks[i].SecretFields() {
+					if *f.Value == "" {
+						continue
+					}
+					if !strings.HasPrefix(*f.Value, "env:") {
+						t.Errorf("sink %s %s %q is not an env: reference", cfg.Sinks[i].Name, f.Item, *f.Value)
+					}
+					envs = append(envs, strings.TrimPrefix(*f.Value, "env:"))
+				}
+			}
 			for _, env := range envs {
+				for _, e := range envs {
+					t.Setenv(e, "s3cret")
+				}
 				c2, _ := config.Load(f)
-				t.Setenv(env, "")
 				os.Unsetenv(env)
 				if err := c2.ResolveSecrets(); !errors.Is(err, config.ErrSecret) {
 					t.Errorf("with %s unset, ResolveSecrets: %v, want ErrSecret", env, err)
@@ -108,8 +121,8 @@ func TestDeployExampleConfigs(t *testing.T) {
 				kinds[s.Kind] = true
 				switch s.Kind {
 				case "influxdb":
-					if s.InfluxDB.TokenEnv == "" || !strings.HasPrefix(s.InfluxDB.SpoolDir, stateDir) {
-						t.Errorf("sink %s: token_env %q, spool_dir %q", s.Name, s.InfluxDB.TokenEnv, s.InfluxDB.SpoolDir)
+					if !strings.HasPrefix(s.InfluxDB.Token, "env:") || !strings.HasPrefix(s.InfluxDB.SpoolDir, stateDir) {
+						t.Errorf("sink %s: token %q (want an env: reference), spool_dir %q", s.Name, s.InfluxDB.Token, s.InfluxDB.SpoolDir)
 					}
 				case "store":
 					if !strings.HasPrefix(s.Store.Path, stateDir) {

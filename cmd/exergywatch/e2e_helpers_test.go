@@ -280,7 +280,7 @@ func fastTree(t testing.TB, natsURL, dir string) tree {
 		}
 	}
 	tr["sinks"] = []any{map[string]any{"name": "history", "kind": "store",
-		"store": map[string]any{"path": filepath.Join(dir, "history.db"), "flush_interval_ms": 50}}}
+		"store": map[string]any{"path": filepath.Join(dir, "history.db"), "flush_interval": "50ms"}}}
 	tr.set(t, "state.path", filepath.Join(dir, "state.db"))
 	tr.set(t, "status.listen", "127.0.0.1:0")
 	return tr
@@ -294,8 +294,8 @@ func (tr tree) addSink(s map[string]any) {
 func influxSink(url, spool string) map[string]any {
 	return map[string]any{"name": "tsdb", "kind": "influxdb", "influxdb": map[string]any{
 		"url": url, "org": "quillmoor", "bucket": "exergywatch", "spool_dir": spool,
-		"flush_interval_ms": 100, "retry_initial_ms": 50, "retry_max_ms": 1000, "direct_attempts": 2,
-		"request_timeout_ms": 2000, "spool_segment_bytes": 65536, "spool_max_bytes": 64 << 20}}
+		"flush_interval": "100ms", "retry_initial": "50ms", "retry_max": "1s", "direct_attempts": 2,
+		"request_timeout": "2s", "spool_segment_bytes": 65536, "spool_max_bytes": 64 << 20}}
 }
 
 // alwaysFiringRule is a performance rule on the air compressor that fires

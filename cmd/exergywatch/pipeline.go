@@ -202,7 +202,7 @@ func buildPipeline(cfg *config.Config, opt pipelineOptions) (p *pipeline, err er
 		defer cancel()
 		_ = p.multi.Close(ctx)
 	})
-	p.state, err = store.Open("state", store.Config{Path: cfg.State.Path, RetentionHours: 24 * 365}, opt.log.With("component", "state"))
+	p.state, err = store.Open("state", store.Config{Path: cfg.State.Path, Retention: 365 * 24 * time.Hour}, opt.log.With("component", "state"))
 	if err != nil {
 		return nil, fmt.Errorf("state file %s: %w", cfg.State.Path, err)
 	}

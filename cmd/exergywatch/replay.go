@@ -1374,12 +1374,12 @@ flags:
 	printReplaySummary(stdout, inputs, &rej, p.metrics, res, stats)
 	for _, s := range cfg.Sinks {
 		if s.Kind == "store" && s.Store != nil && !res.First.IsZero() {
-			h := s.Store.RetentionHours
-			if h <= 0 {
-				h = 720
+			keep := s.Store.Retention
+			if keep <= 0 {
+				keep = 720 * time.Hour
 			}
-			if res.First.Before(time.Now().Add(-time.Duration(h) * time.Hour)) {
-				fmt.Fprintf(stdout, "  WARNING           sink %s keeps %d h counted from the wall clock: records older than that are deleted at its next retention run; raise retention_hours to keep them\n", s.Name, h)
+			if res.First.Before(time.Now().Add(-keep)) {
+				fmt.Fprintf(stdout, "  WARNING           sink %s keeps %v counted from the wall clock: records older than that are deleted at its next retention run; raise retention to keep them\n", s.Name, keep)
 			}
 		}
 	}

@@ -117,7 +117,7 @@ func replayConfig(t testing.TB, dir string, copies int, rate, iv time.Duration) 
 	}
 	s := strings.Replace(string(b), "path: exergywatch-sim.db", "path: "+filepath.Join(dir, "history.db"), 1)
 	// Replayed data is older than the wall clock: keep it (10 years).
-	s = strings.Replace(s, "retention_hours: 24", "retention_hours: 87600", 1)
+	s = strings.Replace(s, "retention: 24h", "retention: 87600h", 1)
 	s = strings.Replace(s, "path: exergywatch-sim-state.db", "path: "+filepath.Join(dir, "state.db"), 1)
 	path := filepath.Join(dir, "replay.yaml")
 	if err := os.WriteFile(path, []byte(s), 0o644); err != nil {
@@ -128,7 +128,7 @@ func replayConfig(t testing.TB, dir string, copies int, rate, iv time.Duration) 
 
 func rpReadStore(t *testing.T, path string) map[string][]compute.Record {
 	t.Helper()
-	st, err := store.Open("check", store.Config{Path: path, RetentionHours: 87600}, nil)
+	st, err := store.Open("check", store.Config{Path: path, Retention: 87600 * time.Hour}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -802,7 +802,7 @@ func TestReplayWritesInfluxSink(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	sink := fmt.Sprintf("sinks:\n  - {name: tsdb, kind: influxdb, influxdb: {url: %q, org: quillmoor, bucket: exergywatch, spool_dir: %q, flush_interval_ms: 100}}\n",
+	sink := fmt.Sprintf("sinks:\n  - {name: tsdb, kind: influxdb, influxdb: {url: %q, org: quillmoor, bucket: exergywatch, spool_dir: %q, flush_interval: 100ms}}\n",
 		vm.URL, filepath.Join(dir, "spool"))
 	s := strings.Replace(string(b), "sinks:\n", sink, 1)
 	if s == string(b) {

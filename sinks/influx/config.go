@@ -3,36 +3,47 @@ package influx
 import (
 	"fmt"
 	"net/url"
-	"os"
-	"strings"
 	"time"
+
+	"github.com/exergywatch/exergywatch/config/tlsconf"
 )
 
-// Config configures the InfluxDB v2 sink. The token is never part of the
-// struct: it is read from the environment variable TokenEnv or the file
-// TokenFile when the sink opens, and never logged.
+// Config configures the InfluxDB v2 sink. Token holds the API token itself
+// once the configuration's secret references were resolved
+// (config.ResolveSecrets): in the file it is written as "env:NAME" or
+// "file:/path", literal tokens are refused by the configuration checks. It
+// is never logged.
 type Config struct {
-	URL       string `yaml:"url"`        // base URL of the server, e.g. http://127.0.0.1:8086
-	Org       string `yaml:"org"`        // v2 organisation (ignored by VictoriaMetrics)
-	Bucket    string `yaml:"bucket"`     // v2 bucket
-	TokenEnv  string `yaml:"token_env"`  // name of the environment variable holding the API token
-	TokenFile string `yaml:"token_file"` // path of a file holding the API token (trailing newline ignored)
+	URL    string `yaml:"url"`    // base URL of the server, e.g. http://127.0.0.1:8086 or https://...
+	Org    string `yaml:"org"`    // v2 organisation (ignored by VictoriaMetrics)
+	Bucket string `yaml:"bucket"` // v2 bucket
+	// Token is the API token (env:NAME or file:/path in the file); empty
+	// for servers without authentication. Never logged.
+	Token string `yaml:"token"`
+	// TLS for https URLs: a private CA (ca_file), a client certificate
+	// (cert_file, key_file) and the server name to verify (server_name).
+	// Without it the system's roots verify the server.
+	TLS *tlsconf.Config `yaml:"tls"`
 
 	// MeasurementPrefix starts every measurement name: <prefix>_machine,
 	// <prefix>_reason, <prefix>_alert. Default "exw".
 	MeasurementPrefix string `yaml:"measurement_prefix"`
 
-	BatchPoints      int `yaml:"batch_points"`       // points per write request; default 5000
-	FlushIntervalMS  int `yaml:"flush_interval_ms"`  // longest time a point waits in memory before a write (ms); default 1000
-	MaxQueuedPoints  int `yaml:"max_queued_points"`  // bound of the in-memory queue (points); default 100000
-	RequestTimeoutMS int `yaml:"request_timeout_ms"` // timeout of one HTTP write (ms); default 10000
+	BatchPoints int `yaml:"batch_points"` // points per write request; default 5000
+	// FlushInterval is the longest time a point waits in memory before a
+	// write (a duration such as 1s); default 1 s.
+	FlushInterval   time.Duration `yaml:"flush_interval"`
+	MaxQueuedPoints int           `yaml:"max_queued_points"` // bound of the in-memory queue (points); default 100000
+	// RequestTimeout is the timeout of one HTTP write (a duration such as
+	// 10s, whole seconds: the client's unit); default 10 s.
+	RequestTimeout time.Duration `yaml:"request_timeout"`
 
-	// Retries: delay n is min(RetryMaxMS, RetryInitialMS * 2^n) with full
+	// Retries: delay n is min(RetryMax, RetryInitial * 2^n) with full
 	// jitter in [delay/2, delay]. A fresh batch is tried DirectAttempts
 	// times, then it goes to the spool; the spool is retried forever.
-	RetryInitialMS int `yaml:"retry_initial_ms"` // default 250
-	RetryMaxMS     int `yaml:"retry_max_ms"`     // default 30000
-	DirectAttempts int `yaml:"direct_attempts"`  // default 3
+	RetryInitial   time.Duration `yaml:"retry_initial"`   // first retry delay (a duration such as 250ms); default 250 ms
+	RetryMax       time.Duration `yaml:"retry_max"`       // cap of the retry delay (a duration such as 30s); default 30 s
+	DirectAttempts int           `yaml:"direct_attempts"` // default 3
 
 	SpoolDir          string `yaml:"spool_dir"`           // directory of the on-disk spool; required
 	SpoolMaxBytes     int64  `yaml:"spool_max_bytes"`     // cap of the spool (bytes); oldest points are dropped beyond it; default 1 GiB
@@ -47,15 +58,20 @@ func (c *Config) Defaults() {
 			*p = v
 		}
 	}
+	setD := func(p *time.Duration, v time.Duration) {
+		if *p == 0 {
+			*p = v
+		}
+	}
 	if c.MeasurementPrefix == "" {
 		c.MeasurementPrefix = "exw"
 	}
 	set(&c.BatchPoints, 5000)
-	set(&c.FlushIntervalMS, 1000)
+	setD(&c.FlushInterval, time.Second)
 	set(&c.MaxQueuedPoints, 100000)
-	set(&c.RequestTimeoutMS, 10000)
-	set(&c.RetryInitialMS, 250)
-	set(&c.RetryMaxMS, 30000)
+	setD(&c.RequestTimeout, 10*time.Second)
+	setD(&c.RetryInitial, 250*time.Millisecond)
+	setD(&c.RetryMax, 30*time.Second)
 	set(&c.DirectAttempts, 3)
 	if c.SpoolMaxBytes == 0 {
 		c.SpoolMaxBytes = 1 << 30
@@ -74,8 +90,11 @@ func (c Config) Validate() error {
 	if c.Bucket == "" {
 		return fmt.Errorf("influx: bucket is empty: set the v2 bucket name")
 	}
-	if c.TokenEnv != "" && c.TokenFile != "" {
-		return fmt.Errorf("influx: set token_env or token_file, not both")
+	if err := c.TLS.Validate(); err != nil {
+		return fmt.Errorf("influx: %w", err)
+	}
+	if c.TLS != nil && u.Scheme != "https" {
+		return fmt.Errorf("influx: tls is set but url %q is not https: write https://host:port or remove tls", c.URL)
 	}
 	if !validName(c.MeasurementPrefix) {
 		return fmt.Errorf("influx: measurement_prefix %q: use letters, digits and '_'", c.MeasurementPrefix)
@@ -83,18 +102,28 @@ func (c Config) Validate() error {
 	pos := []struct {
 		name string
 		v    int
-	}{{"batch_points", c.BatchPoints}, {"flush_interval_ms", c.FlushIntervalMS}, {"max_queued_points", c.MaxQueuedPoints},
-		{"request_timeout_ms", c.RequestTimeoutMS}, {"retry_initial_ms", c.RetryInitialMS}, {"retry_max_ms", c.RetryMaxMS}, {"direct_attempts", c.DirectAttempts}}
+	}{{"batch_points", c.BatchPoints}, {"max_queued_points", c.MaxQueuedPoints}, {"direct_attempts", c.DirectAttempts}}
 	for _, p := range pos {
 		if p.v < 1 {
 			return fmt.Errorf("influx: %s = %d: must be at least 1", p.name, p.v)
 		}
 	}
+	durs := []struct {
+		name string
+		v    time.Duration
+		min  time.Duration
+	}{{"flush_interval", c.FlushInterval, time.Millisecond}, {"request_timeout", c.RequestTimeout, time.Second},
+		{"retry_initial", c.RetryInitial, time.Millisecond}, {"retry_max", c.RetryMax, time.Millisecond}}
+	for _, d := range durs {
+		if d.v < d.min {
+			return fmt.Errorf("influx: %s = %v: must be at least %v", d.name, d.v, d.min)
+		}
+	}
 	if c.MaxQueuedPoints < c.BatchPoints {
 		return fmt.Errorf("influx: max_queued_points %d is below batch_points %d: raise it", c.MaxQueuedPoints, c.BatchPoints)
 	}
-	if c.RetryMaxMS < c.RetryInitialMS {
-		return fmt.Errorf("influx: retry_max_ms %d is below retry_initial_ms %d", c.RetryMaxMS, c.RetryInitialMS)
+	if c.RetryMax < c.RetryInitial {
+		return fmt.Errorf("influx: retry_max %v is below retry_initial %v: raise retry_max", c.RetryMax, c.RetryInitial)
 	}
 	if c.SpoolDir == "" {
 		return fmt.Errorf("influx: spool_dir is empty: set a directory for points kept while the database is down")
@@ -106,30 +135,4 @@ func (c Config) Validate() error {
 		return fmt.Errorf("influx: spool_max_bytes %d must be at least twice spool_segment_bytes %d", c.SpoolMaxBytes, c.SpoolSegmentBytes)
 	}
 	return nil
-}
-
-func ms(v int) time.Duration { return time.Duration(v) * time.Millisecond }
-
-// token reads the API token from TokenEnv or TokenFile; "" when neither is
-// set (servers without authentication). The value is never logged.
-func (c Config) token() (string, error) {
-	switch {
-	case c.TokenEnv != "":
-		t, ok := os.LookupEnv(c.TokenEnv)
-		if !ok || t == "" {
-			return "", fmt.Errorf("influx: environment variable %s (token_env) is not set or empty", c.TokenEnv)
-		}
-		return t, nil
-	case c.TokenFile != "":
-		b, err := os.ReadFile(c.TokenFile)
-		if err != nil {
-			return "", fmt.Errorf("influx: token_file: %w", err)
-		}
-		t := strings.TrimSpace(string(b))
-		if t == "" {
-			return "", fmt.Errorf("influx: token_file %s is empty", c.TokenFile)
-		}
-		return t, nil
-	}
-	return "", nil
 }

@@ -9,16 +9,20 @@
 // point plus one per active reason code; one event gives one point.
 //
 // Error classes: network errors, timeouts, HTTP 5xx and 429 are retryable
-// (the batch is retried, then spooled). HTTP 401, 403 and 404 are
-// configuration errors (wrong token, organisation or bucket): the data is
-// kept in the spool and retried at the longest backoff, because throwing it
-// away would turn a token rotation into data loss. Any other 4xx means the
+// (the batch is retried, then spooled). HTTP 401, 403 and 404 and TLS
+// handshakes failing on a certificate (server not trusted: no or wrong
+// tls.ca_file; client certificate refused) are configuration errors (wrong
+// token, organisation, bucket or TLS settings): the data is kept in the
+// spool and retried at the longest backoff, because throwing it away would
+// turn a token or certificate rotation into data loss. Any other 4xx means the
 // server refuses the data itself: the batch is dropped and counted.
 package influx
 
 import (
 	"bytes"
 	"context"
+	"crypto/tls"
+	"crypto/x509"
 	"errors"
 	"fmt"
 	"log/slog"
@@ -92,17 +96,20 @@ func New(name string, cfg Config, logger *slog.Logger) (*Sink, error) {
 	if logger == nil {
 		logger = slog.Default()
 	}
-	token, err := cfg.token()
+	tc, err := cfg.TLS.Client()
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("influx: %w", err)
 	}
 	sp, err := openSpool(cfg.SpoolDir, cfg.SpoolMaxBytes, cfg.SpoolSegmentBytes, !cfg.SpoolNoFsync)
 	if err != nil {
 		return nil, err
 	}
 	opts := influxdb2.DefaultOptions().SetPrecision(time.Millisecond).SetLogLevel(0).
-		SetHTTPRequestTimeout(uint((cfg.RequestTimeoutMS + 999) / 1000))
-	client := influxdb2.NewClientWithOptions(cfg.URL, token, opts)
+		SetHTTPRequestTimeout(uint((cfg.RequestTimeout + time.Second - 1) / time.Second))
+	if tc != nil {
+		opts.SetTLSConfig(tc)
+	}
+	client := influxdb2.NewClientWithOptions(cfg.URL, cfg.Token, opts)
 	ctx, cancel := context.WithCancel(context.Background())
 	s := &Sink{
 		cfg: cfg, name: name, log: logger.With("sink", name), client: client,
@@ -236,7 +243,7 @@ func (s *Sink) take(max int) ([]byte, int) {
 
 func (s *Sink) run() {
 	defer close(s.done)
-	t := time.NewTicker(ms(s.cfg.FlushIntervalMS))
+	t := time.NewTicker(s.cfg.FlushInterval)
 	defer t.Stop()
 	for {
 		select {
@@ -290,6 +297,9 @@ func classify(err error) errClass {
 	if err == nil {
 		return classOK
 	}
+	if tlsRefused(err) {
+		return classConfig
+	}
 	var he *http2.Error
 	if errors.As(err, &he) && he.StatusCode != 0 {
 		switch c := he.StatusCode; {
@@ -304,6 +314,31 @@ func classify(err error) errClass {
 	return classRetry
 }
 
+// tlsRefused reports a TLS handshake that failed on a certificate: the
+// server's is not trusted (unknown CA, wrong name, expired) or the server
+// refused ours. Retrying cannot help until the configuration changes.
+func tlsRefused(err error) bool {
+	var verr *tls.CertificateVerificationError
+	var uerr x509.UnknownAuthorityError
+	var herr x509.HostnameError
+	var ierr x509.CertificateInvalidError
+	var aerr tls.AlertError
+	return errors.As(err, &verr) || errors.As(err, &uerr) || errors.As(err, &herr) || errors.As(err, &ierr) || errors.As(err, &aerr)
+}
+
+// explain adds how to fix a configuration error (classConfig) to err.
+func explain(err error) error {
+	switch {
+	case tlsRefused(err):
+		return fmt.Errorf("influx: TLS handshake refused (fix: set tls.ca_file to the CA that signed the server's certificate, tls.server_name to a name in it, or tls.cert_file/key_file if the server wants a client certificate): %w", err)
+	case statusOf(err) == 401 || statusOf(err) == 403:
+		return fmt.Errorf("influx: token refused (fix: check token and its write permission on the bucket): %w", err)
+	case statusOf(err) == 404:
+		return fmt.Errorf("influx: not found (fix: check org and bucket): %w", err)
+	}
+	return err
+}
+
 func statusOf(err error) int {
 	var he *http2.Error
 	if errors.As(err, &he) {
@@ -315,21 +350,21 @@ func statusOf(err error) int {
 // backoff returns the delay before retry number n (0-based): capped
 // exponential with jitter in [d/2, d], at least the server's Retry-After.
 func (s *Sink) backoff(n int, err error) time.Duration {
-	d := ms(s.cfg.RetryInitialMS)
-	for i := 0; i < n && d < ms(s.cfg.RetryMaxMS); i++ {
+	d := s.cfg.RetryInitial
+	for i := 0; i < n && d < s.cfg.RetryMax; i++ {
 		d *= 2
 	}
-	d = min(d, ms(s.cfg.RetryMaxMS))
+	d = min(d, s.cfg.RetryMax)
 	d = d/2 + rand.N(d/2+1)
 	var he *http2.Error
 	if errors.As(err, &he) && he.RetryAfter > 0 {
-		d = max(d, min(time.Duration(he.RetryAfter)*time.Second, ms(s.cfg.RetryMaxMS)))
+		d = max(d, min(time.Duration(he.RetryAfter)*time.Second, s.cfg.RetryMax))
 	}
 	return d
 }
 
 func (s *Sink) writeOnce(data []byte) error {
-	ctx, cancel := context.WithTimeout(s.runCtx, ms(s.cfg.RequestTimeoutMS))
+	ctx, cancel := context.WithTimeout(s.runCtx, s.cfg.RequestTimeout)
 	defer cancel()
 	return s.api.WriteRecord(ctx, string(bytes.TrimSuffix(data, []byte{'\n'})))
 }
@@ -368,6 +403,10 @@ func (s *Sink) deliver(data []byte, n, attempts int) {
 			s.setErr(err)
 			s.log.Error("server refused a batch; points dropped", "points", n, "status", statusOf(err), "err", err)
 			return
+		case classConfig:
+			err = explain(err)
+			s.setErr(err)
+			s.log.Error("database refuses the connection or the credentials; spooling", "points", n, "status", statusOf(err), "err", err)
 		default:
 			s.setErr(err)
 			s.log.Warn("database unreachable; spooling", "points", n, "status", statusOf(err), "err", err)
@@ -417,7 +456,8 @@ func (s *Sink) replay(force bool) {
 			s.failures++
 			delay := s.backoff(s.failures-1, err)
 			if classify(err) == classConfig {
-				delay = ms(s.cfg.RetryMaxMS)
+				delay = s.cfg.RetryMax
+				err = explain(err)
 			}
 			s.nextTry = time.Now().Add(delay)
 			s.setErr(err)

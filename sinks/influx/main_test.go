@@ -3,6 +3,7 @@ package influx
 import (
 	"context"
 	"testing"
+	"time"
 
 	"go.uber.org/goleak"
 
@@ -43,7 +44,7 @@ func BenchmarkParseLine(b *testing.B) {
 // memory queue (the server is a dead address; the writer spools).
 func BenchmarkWriteRecordQueue(b *testing.B) {
 	cfg := Config{URL: "http://127.0.0.1:1", Bucket: "b", SpoolDir: b.TempDir(), MaxQueuedPoints: 1 << 24, BatchPoints: 5000,
-		FlushIntervalMS: 1000, SpoolNoFsync: true, RetryInitialMS: 1, RetryMaxMS: 1, DirectAttempts: 1}
+		FlushInterval: time.Second, SpoolNoFsync: true, RetryInitial: time.Millisecond, RetryMax: time.Millisecond, DirectAttempts: 1}
 	s, err := New("bench", cfg, nil)
 	if err != nil {
 		b.Fatal(err)

@@ -33,8 +33,8 @@ func testLogger(t *testing.T) *slog.Logger {
 func testConfig(url, spool string) Config {
 	return Config{
 		URL: url, Org: "exergywatch", Bucket: "test", SpoolDir: spool,
-		BatchPoints: 500, FlushIntervalMS: 50, RetryInitialMS: 20, RetryMaxMS: 200, DirectAttempts: 2,
-		RequestTimeoutMS: 2000, SpoolSegmentBytes: 64 << 10, SpoolMaxBytes: 64 << 20,
+		BatchPoints: 500, FlushInterval: 50 * time.Millisecond, RetryInitial: 20 * time.Millisecond, RetryMax: 200 * time.Millisecond, DirectAttempts: 2,
+		RequestTimeout: 2 * time.Second, SpoolSegmentBytes: 64 << 10, SpoolMaxBytes: 64 << 20,
 	}
 }
 
@@ -376,7 +376,7 @@ func TestVMErrorClasses(t *testing.T) {
 func BenchmarkVMThroughput(b *testing.B) {
 	vm := vmtest.StartServer(b)
 	cfg := testConfig(vm.URL, b.TempDir())
-	cfg.BatchPoints, cfg.MaxQueuedPoints, cfg.FlushIntervalMS = 5000, 200000, 200
+	cfg.BatchPoints, cfg.MaxQueuedPoints, cfg.FlushInterval = 5000, 200000, 200*time.Millisecond
 	s, err := New("vm", cfg, slog.New(slog.NewTextHandler(io.Discard, nil)))
 	if err != nil {
 		b.Fatal(err)

@@ -12,7 +12,7 @@
 //
 // Without JetStream a message is published with core NATS (at most once):
 // while the connection is down the client keeps messages in its reconnect
-// buffer (ReconnectBufBytes) and sends them after reconnecting; a message that
+// buffer (reconnect_buffer_bytes) and sends them after reconnecting; a message that
 // does not fit is dropped and counted. With JetStream each message is
 // published and acknowledged by the stream, retried with capped backoff until
 // the write's context ends, and carries a Nats-Msg-Id so that retries are
@@ -30,7 +30,6 @@ import (
 	"fmt"
 	"log/slog"
 	"math/rand/v2"
-	"os"
 	"strconv"
 	"strings"
 	"sync"
@@ -41,6 +40,7 @@ import (
 	"github.com/nats-io/nats.go/jetstream"
 
 	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/config/natsconn"
 	"github.com/exergywatch/exergywatch/sinks"
 )
 
@@ -49,53 +49,64 @@ var (
 	_ sinks.Reporter = (*Sink)(nil)
 )
 
-// Config configures the NATS sink.
+// Config configures the NATS sink. The connection settings (urls, name,
+// user, password, token, nkey_seed_file, credentials_file, tls,
+// reconnect_wait, reconnect_buffer_bytes) are those of the NATS source
+// (package config/natsconn) and sit at the same level as the sink's own
+// keys.
 type Config struct {
-	URL           string `yaml:"url"`            // server URL(s), comma-separated, e.g. nats://127.0.0.1:4222
+	// Conn: servers, authentication, TLS and reconnecting. The default
+	// connection name is "exergywatch-<sink name>". ReconnectBufferBytes
+	// bounds what core publishing keeps while the connection is down
+	// (bytes). Default 8 MiB: a record with two figures is about 370 bytes
+	// of JSON (measured in TestCoreReconnectBuffer), with six figures about
+	// 0.9 kB, so this holds about 9 000 records, 30 minutes for 5 machines
+	// at one evaluation per second.
+	Conn natsconn.Settings `yaml:",inline"`
+
 	SubjectPrefix string `yaml:"subject_prefix"` // first subject token; default "exergywatch"
-	CredsFile     string `yaml:"creds_file"`     // NATS credentials file (JWT + nkey); optional
-	TokenEnv      string `yaml:"token_env"`      // environment variable holding an auth token; optional, never logged
 
-	JetStream         bool   `yaml:"jetstream"`            // publish with JetStream acknowledgements
-	Stream            string `yaml:"stream"`               // JetStream stream name; default "EXERGYWATCH"
-	CreateStream      bool   `yaml:"create_stream"`        // create or update the stream (subjects <prefix>.>) when missing
-	StreamMaxAgeHours int    `yaml:"stream_max_age_hours"` // retention of a created stream (h); default 168
+	JetStream    bool   `yaml:"jetstream"`     // publish with JetStream acknowledgements
+	Stream       string `yaml:"stream"`        // JetStream stream name; default "EXERGYWATCH"
+	CreateStream bool   `yaml:"create_stream"` // create or update the stream (subjects <prefix>.>) when missing
+	// StreamMaxAge is the retention of a created stream (a duration such
+	// as 720h); default 168 h (7 days).
+	StreamMaxAge time.Duration `yaml:"stream_max_age"`
 
-	// ReconnectBufBytes bounds what core publishing keeps while the
-	// connection is down (bytes). Default 8 MiB: a record with two figures
-	// is about 370 bytes of JSON (measured in TestCoreReconnectBuffer), with
-	// six figures about 0.9 kB, so this holds about 9 000 records, 30 minutes
-	// for 5 machines at one evaluation per second.
-	ReconnectBufBytes int `yaml:"reconnect_buf_bytes"`
-	ReconnectWaitMS   int `yaml:"reconnect_wait_ms"`  // pause between reconnect attempts (ms); default 1000
-	PublishTimeoutMS  int `yaml:"publish_timeout_ms"` // wait for one JetStream acknowledgement (ms); default 5000
-	RetryMaxMS        int `yaml:"retry_max_ms"`       // cap of the JetStream retry backoff (ms); default 2000
+	// PublishTimeout is the wait for one JetStream acknowledgement (a
+	// duration such as 5s); default 5 s.
+	PublishTimeout time.Duration `yaml:"publish_timeout"`
+	// RetryMax caps the JetStream retry backoff (a duration such as 2s);
+	// default 2 s.
+	RetryMax time.Duration `yaml:"retry_max"`
 }
 
 // Defaults fills zero fields with defaults.
 func (c *Config) Defaults() {
+	c.Conn.Defaults()
+	if c.Conn.ReconnectBufferBytes == 0 {
+		c.Conn.ReconnectBufferBytes = 8 << 20
+	}
 	if c.SubjectPrefix == "" {
 		c.SubjectPrefix = "exergywatch"
 	}
 	if c.Stream == "" {
 		c.Stream = "EXERGYWATCH"
 	}
-	def := func(p *int, v int) {
+	def := func(p *time.Duration, v time.Duration) {
 		if *p == 0 {
 			*p = v
 		}
 	}
-	def(&c.StreamMaxAgeHours, 168)
-	def(&c.ReconnectBufBytes, 8<<20)
-	def(&c.ReconnectWaitMS, 1000)
-	def(&c.PublishTimeoutMS, 5000)
-	def(&c.RetryMaxMS, 2000)
+	def(&c.StreamMaxAge, 168*time.Hour)
+	def(&c.PublishTimeout, 5*time.Second)
+	def(&c.RetryMax, 2*time.Second)
 }
 
 // Validate checks the settings; every message says how to fix the value.
 func (c Config) Validate() error {
-	if c.URL == "" {
-		return fmt.Errorf("natsout: url is empty: set e.g. nats://127.0.0.1:4222")
+	if err := c.Conn.Validate(); err != nil {
+		return fmt.Errorf("natsout: %w", err)
 	}
 	if c.SubjectPrefix != Token(c.SubjectPrefix) {
 		return fmt.Errorf("natsout: subject_prefix %q must be one subject token (no '.', '*', '>' or spaces)", c.SubjectPrefix)
@@ -103,20 +114,18 @@ func (c Config) Validate() error {
 	if c.JetStream && (c.Stream == "" || strings.ContainsAny(c.Stream, ".*> \t")) {
 		return fmt.Errorf("natsout: stream %q: use letters, digits, '-' and '_'", c.Stream)
 	}
-	if c.CredsFile != "" && c.TokenEnv != "" {
-		return fmt.Errorf("natsout: set creds_file or token_env, not both")
-	}
 	for _, p := range []struct {
-		n string
-		v int
-	}{{"stream_max_age_hours", c.StreamMaxAgeHours}, {"reconnect_wait_ms", c.ReconnectWaitMS},
-		{"publish_timeout_ms", c.PublishTimeoutMS}, {"retry_max_ms", c.RetryMaxMS}} {
-		if p.v < 1 {
-			return fmt.Errorf("natsout: %s = %d: must be at least 1", p.n, p.v)
+		n   string
+		v   time.Duration
+		min time.Duration
+	}{{"stream_max_age", c.StreamMaxAge, time.Second}, {"reconnect_wait", c.Conn.ReconnectWait, time.Millisecond},
+		{"publish_timeout", c.PublishTimeout, time.Millisecond}, {"retry_max", c.RetryMax, time.Millisecond}} {
+		if p.v < p.min {
+			return fmt.Errorf("natsout: %s = %v: must be at least %v", p.n, p.v, p.min)
 		}
 	}
-	if c.ReconnectBufBytes < 64<<10 {
-		return fmt.Errorf("natsout: reconnect_buf_bytes %d: use at least 65536 (a record is about 0.4 to 1 kB)", c.ReconnectBufBytes)
+	if c.Conn.ReconnectBufferBytes < 64<<10 {
+		return fmt.Errorf("natsout: reconnect_buffer_bytes %d: use at least 65536 (a record is about 0.4 to 1 kB)", c.Conn.ReconnectBufferBytes)
 	}
 	return nil
 }
@@ -157,10 +166,11 @@ type Sink struct {
 	streamReady atomic.Bool
 	streamMu    sync.Mutex
 
-	closed   atomic.Bool
-	written  atomic.Uint64
-	dropped  atomic.Uint64
-	rejected atomic.Uint64
+	closed    atomic.Bool
+	connFails atomic.Uint64 // failed connect attempts since the last success
+	written   atomic.Uint64
+	dropped   atomic.Uint64
+	rejected  atomic.Uint64
 
 	errMu     sync.Mutex
 	lastErr   string
@@ -182,11 +192,16 @@ func New(name string, cfg Config, logger *slog.Logger) (*Sink, error) {
 		logger = slog.Default()
 	}
 	s := &Sink{cfg: cfg, name: name, log: logger.With("sink", name)}
-	opts := []nats.Option{
-		nats.Name("exergywatch-" + name),
+	conn := cfg.Conn
+	if conn.Name == "" {
+		conn.Name = "exergywatch-" + name
+	}
+	opts, err := conn.Options()
+	if err != nil {
+		return nil, fmt.Errorf("natsout: %w", err)
+	}
+	opts = append(opts,
 		nats.MaxReconnects(-1),
-		nats.ReconnectWait(time.Duration(cfg.ReconnectWaitMS) * time.Millisecond),
-		nats.ReconnectBufSize(cfg.ReconnectBufBytes),
 		nats.RetryOnFailedConnect(true),
 		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
 			if err != nil {
@@ -194,19 +209,44 @@ func New(name string, cfg Config, logger *slog.Logger) (*Sink, error) {
 			}
 			s.log.Warn("nats disconnected; buffering", "err", err)
 		}),
-		nats.ReconnectHandler(func(nc *nats.Conn) { s.log.Info("nats reconnected", "url", nc.ConnectedUrlRedacted()) }),
-	}
-	if cfg.CredsFile != "" {
-		opts = append(opts, nats.UserCredentials(cfg.CredsFile))
-	}
-	if cfg.TokenEnv != "" {
-		tok, ok := os.LookupEnv(cfg.TokenEnv)
-		if !ok || tok == "" {
-			return nil, fmt.Errorf("natsout: environment variable %s (token_env) is not set or empty", cfg.TokenEnv)
-		}
-		opts = append(opts, nats.Token(tok))
-	}
-	nc, err := nats.Connect(cfg.URL, opts...)
+		nats.ReconnectHandler(func(nc *nats.Conn) {
+			s.connFails.Store(0)
+			s.log.Info("nats reconnected", "url", nc.ConnectedUrlRedacted())
+		}),
+		// nats.go gives up only when the server refuses the credentials
+		// twice in a row; the sink then drops what it is given until the
+		// configuration is fixed and reloaded.
+		nats.ClosedHandler(func(nc *nats.Conn) {
+			if s.closed.Load() {
+				return
+			}
+			last := nc.LastError()
+			if last == nil {
+				last = nats.ErrConnectionClosed
+			}
+			err := fmt.Errorf("natsout: connection closed for good: %w", last)
+			s.setErr(err)
+			s.log.Error("nats connection closed; fix the credentials and reload", "err", err)
+		}),
+		// A failed (re)connect attempt: refused TLS certificate, refused
+		// credentials, server down. Kept as the last error; logged on the
+		// first failure and every 100th.
+		nats.ReconnectErrHandler(func(_ *nats.Conn, err error) {
+			if err == nil {
+				return
+			}
+			err = fmt.Errorf("natsout: connect: %w", err)
+			s.setErr(err)
+			if n := s.connFails.Add(1); n == 1 || n%100 == 0 {
+				s.log.Warn("nats connect attempt failed; retrying", "err", err, "attempts", n)
+			}
+		}),
+		nats.ConnectHandler(func(nc *nats.Conn) {
+			s.connFails.Store(0)
+			s.log.Info("nats connected", "url", nc.ConnectedUrlRedacted())
+		}),
+	)
+	nc, err := nats.Connect(conn.URL(), opts...)
 	if err != nil {
 		return nil, fmt.Errorf("natsout: connect: %w", err)
 	}
@@ -219,7 +259,7 @@ func New(name string, cfg Config, logger *slog.Logger) (*Sink, error) {
 		}
 		s.js = js
 		if cfg.CreateStream {
-			ctx, cancel := context.WithTimeout(context.Background(), time.Duration(cfg.PublishTimeoutMS)*time.Millisecond)
+			ctx, cancel := context.WithTimeout(context.Background(), cfg.PublishTimeout)
 			defer cancel()
 			if err := s.ensureStream(ctx); err != nil {
 				// not fatal: the server may come later; retried on publish
@@ -243,7 +283,7 @@ func (s *Sink) ensureStream(ctx context.Context) error {
 		Name:       s.cfg.Stream,
 		Subjects:   []string{s.cfg.SubjectPrefix + ".>"},
 		Storage:    jetstream.FileStorage,
-		MaxAge:     time.Duration(s.cfg.StreamMaxAgeHours) * time.Hour,
+		MaxAge:     s.cfg.StreamMaxAge,
 		Duplicates: 2 * time.Minute,
 	})
 	if err != nil {
@@ -319,7 +359,7 @@ func (s *Sink) publish(ctx context.Context, subj, id string, data []byte) error 
 			err = s.ensureStream(ctx)
 		}
 		if err == nil {
-			actx, cancel := context.WithTimeout(ctx, time.Duration(s.cfg.PublishTimeoutMS)*time.Millisecond)
+			actx, cancel := context.WithTimeout(ctx, s.cfg.PublishTimeout)
 			_, err = s.js.PublishMsg(actx, msg, jetstream.WithMsgID(id), jetstream.WithExpectStream(s.cfg.Stream))
 			cancel()
 			if err == nil {
@@ -337,7 +377,7 @@ func (s *Sink) publish(ctx context.Context, subj, id string, data []byte) error 
 			t.Stop()
 			return s.drop(fmt.Errorf("natsout: jetstream publish %s: gave up after %d attempts: %w (last: %w)", subj, attempt, ctx.Err(), err))
 		}
-		delay = min(2*delay, time.Duration(s.cfg.RetryMaxMS)*time.Millisecond)
+		delay = min(2*delay, s.cfg.RetryMax)
 	}
 }
 

@@ -23,7 +23,7 @@
 //	                  value = caller's bytes, stored as given
 //
 // Times before 1970 are refused. Writes are buffered in memory for at most
-// FlushIntervalMS (or BatchItems items) and committed in one transaction;
+// FlushInterval (or BatchItems items) and committed in one transaction;
 // queries commit the buffer first, so they always see every accepted write.
 // State writes (PutState, DeleteState) are committed before they return.
 package store
@@ -71,24 +71,30 @@ var ErrFormat = errors.New("store: unknown file format")
 
 // Config configures the embedded store.
 type Config struct {
-	Path            string `yaml:"path"`              // file path; the directory is created when missing
-	RetentionHours  int    `yaml:"retention_hours"`   // records and events older than this (by wall clock) are deleted; default 720 (30 days)
-	PruneIntervalS  int    `yaml:"prune_interval_s"`  // how often retention runs (s); default 600
-	FlushIntervalMS int    `yaml:"flush_interval_ms"` // longest time a write waits in memory before commit (ms); default 200
-	BatchItems      int    `yaml:"batch_items"`       // commit at once when this many writes wait; default 1000
-	NoSync          bool   `yaml:"no_sync"`           // skip fsync on commit (faster; a power loss may lose the last commits)
+	Path string `yaml:"path"` // file path; the directory is created when missing
+	// Retention: records and events older than this (by wall clock) are
+	// deleted (a duration such as 720h); default 720 h (30 days).
+	Retention time.Duration `yaml:"retention"`
+	// PruneInterval is how often retention runs (a duration such as 10m);
+	// default 10 min.
+	PruneInterval time.Duration `yaml:"prune_interval"`
+	// FlushInterval is the longest time a write waits in memory before
+	// commit (a duration such as 200ms); default 200 ms.
+	FlushInterval time.Duration `yaml:"flush_interval"`
+	BatchItems    int           `yaml:"batch_items"` // commit at once when this many writes wait; default 1000
+	NoSync        bool          `yaml:"no_sync"`     // skip fsync on commit (faster; a power loss may lose the last commits)
 }
 
 // Defaults fills zero fields with defaults.
 func (c *Config) Defaults() {
-	if c.RetentionHours == 0 {
-		c.RetentionHours = 720
+	if c.Retention == 0 {
+		c.Retention = 720 * time.Hour
 	}
-	if c.PruneIntervalS == 0 {
-		c.PruneIntervalS = 600
+	if c.PruneInterval == 0 {
+		c.PruneInterval = 10 * time.Minute
 	}
-	if c.FlushIntervalMS == 0 {
-		c.FlushIntervalMS = 200
+	if c.FlushInterval == 0 {
+		c.FlushInterval = 200 * time.Millisecond
 	}
 	if c.BatchItems == 0 {
 		c.BatchItems = 1000
@@ -100,12 +106,12 @@ func (c Config) Validate() error {
 	switch {
 	case c.Path == "":
 		return fmt.Errorf("store: path is empty: set the file for the embedded store, e.g. /var/lib/exergywatch/store.db")
-	case c.RetentionHours < 1:
-		return fmt.Errorf("store: retention_hours %d: must be at least 1", c.RetentionHours)
-	case c.PruneIntervalS < 1:
-		return fmt.Errorf("store: prune_interval_s %d: must be at least 1", c.PruneIntervalS)
-	case c.FlushIntervalMS < 1:
-		return fmt.Errorf("store: flush_interval_ms %d: must be at least 1", c.FlushIntervalMS)
+	case c.Retention < time.Hour:
+		return fmt.Errorf("store: retention %v: must be at least 1h", c.Retention)
+	case c.PruneInterval < time.Second:
+		return fmt.Errorf("store: prune_interval %v: must be at least 1s", c.PruneInterval)
+	case c.FlushInterval < time.Millisecond:
+		return fmt.Errorf("store: flush_interval %v: must be at least 1ms", c.FlushInterval)
 	case c.BatchItems < 1:
 		return fmt.Errorf("store: batch_items %d: must be at least 1", c.BatchItems)
 	}
@@ -201,9 +207,9 @@ func Open(name string, cfg Config, logger *slog.Logger) (*Store, error) {
 
 func (s *Store) run() {
 	defer close(s.done)
-	flush := time.NewTicker(time.Duration(s.cfg.FlushIntervalMS) * time.Millisecond)
+	flush := time.NewTicker(s.cfg.FlushInterval)
 	defer flush.Stop()
-	prune := time.NewTicker(time.Duration(s.cfg.PruneIntervalS) * time.Second)
+	prune := time.NewTicker(s.cfg.PruneInterval)
 	defer prune.Stop()
 	for {
 		select {
@@ -251,7 +257,7 @@ func (s *Store) reject(err error) error {
 }
 
 // WriteRecord validates and buffers the record; it is committed within
-// FlushIntervalMS. Errors wrap sinks.ErrInvalid (rejected, counted) or
+// FlushInterval. Errors wrap sinks.ErrInvalid (rejected, counted) or
 // sinks.ErrClosed; a failed commit is counted in Dropped and returned.
 func (s *Store) WriteRecord(ctx context.Context, r compute.Record) error {
 	b, err := sinks.MarshalRecord(r)
@@ -504,10 +510,10 @@ func (s *Store) RecentEvents(machine string, limit int) ([]compute.Event, error)
 	return out, err
 }
 
-// Prune deletes records and events older than now minus RetentionHours and
-// returns how many it deleted. It runs every PruneIntervalS by itself.
+// Prune deletes records and events older than now minus Retention and
+// returns how many it deleted. It runs every PruneInterval by itself.
 func (s *Store) Prune(now time.Time) (records, events int, err error) {
-	cutoff := now.Add(-time.Duration(s.cfg.RetentionHours) * time.Hour)
+	cutoff := now.Add(-s.cfg.Retention)
 	if cutoff.Before(time.Unix(0, 1)) {
 		return 0, 0, nil
 	}

@@ -59,7 +59,7 @@ func stored(r compute.Record) compute.Record {
 
 func open(t *testing.T, path string) *Store {
 	t.Helper()
-	s, err := Open("store", Config{Path: path, FlushIntervalMS: 20}, quiet)
+	s, err := Open("store", Config{Path: path, FlushInterval: 20 * time.Millisecond}, quiet)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -210,7 +210,7 @@ func TestRestartPersistence(t *testing.T) {
 
 func TestRetention(t *testing.T) {
 	ctx := context.Background()
-	s, err := Open("store", Config{Path: filepath.Join(t.TempDir(), "s.db"), RetentionHours: 2}, quiet)
+	s, err := Open("store", Config{Path: filepath.Join(t.TempDir(), "s.db"), Retention: 2 * time.Hour}, quiet)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -318,7 +318,7 @@ func TestFormatCheck(t *testing.T) {
 	if _, err := Open("store", Config{Path: path}, quiet); !errors.Is(err, ErrFormat) {
 		t.Errorf("open foreign file: %v, want ErrFormat", err)
 	}
-	if err := (Config{Path: path, RetentionHours: -1, PruneIntervalS: 1, FlushIntervalMS: 1, BatchItems: 1}).Validate(); err == nil {
+	if err := (Config{Path: path, Retention: -time.Hour, PruneInterval: time.Second, FlushInterval: time.Millisecond, BatchItems: 1}).Validate(); err == nil {
 		t.Error("negative retention accepted")
 	}
 }
