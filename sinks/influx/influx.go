@@ -27,6 +27,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math/rand/v2"
+	"net"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -323,7 +324,13 @@ func tlsRefused(err error) bool {
 	var herr x509.HostnameError
 	var ierr x509.CertificateInvalidError
 	var aerr tls.AlertError
-	return errors.As(err, &verr) || errors.As(err, &uerr) || errors.As(err, &herr) || errors.As(err, &ierr) || errors.As(err, &aerr)
+	if errors.As(err, &verr) || errors.As(err, &uerr) || errors.As(err, &herr) || errors.As(err, &ierr) || errors.As(err, &aerr) {
+		return true
+	}
+	// An alert from the server ("remote error: tls: certificate
+	// required"): it refused the handshake, e.g. our client certificate.
+	var oerr *net.OpError
+	return errors.As(err, &oerr) && oerr.Op == "remote error"
 }
 
 // explain adds how to fix a configuration error (classConfig) to err.
