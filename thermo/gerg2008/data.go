@@ -33,6 +33,7 @@ const (
 	maxTerms  = 256 // merged pure-fluid and polynomial departure terms
 	maxDep    = 64  // merged exponential departure terms
 	maxDepExp = 48  // distinct departure exponents
+	maxGroups = 96  // (d, c, e) groups of merged terms
 	maxFrac   = 64  // distinct fractional parts of the tau exponents (else exp(t ln tau) per exponent)
 	maxIntPow = 63  // largest |floor(t)| of a tau exponent for integer powers (else exp(t ln tau))
 )

@@ -293,7 +293,9 @@ func NewDetail(composition map[string]float64) (*Mixture, error) {
 			ts.maxD = max(ts.maxD, k.d)
 		}
 	}
-	ts.indexT()
+	if err := ts.indexT(); err != nil {
+		return nil, err
+	}
 	if len(ts.list) > maxTerms {
 		return nil, fmt.Errorf("gerg2008: DETAIL: %d merged terms exceed %d", len(ts.list), maxTerms)
 	}

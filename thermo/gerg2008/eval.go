@@ -2,12 +2,13 @@ package gerg2008
 
 import "math"
 
-// tauCache holds the temperature-dependent factors n_k tau^t_k of every
-// merged residual term; it lives on the caller's stack.
+// tauCache holds the temperature-dependent factors of the merged residual
+// terms, summed per (d, c, e) group: g0 = sum n tau^t, g1 = sum n t tau^t
+// and g2 = sum n t (t-1) tau^t; it lives on the caller's stack.
 type tauCache struct {
-	T, tau float64
-	B      float64 // second virial coefficient, dm3/mol (a starting value for the density)
-	nt     [maxTerms]float64
+	T, tau     float64
+	B          float64 // second virial coefficient, dm3/mol (a starting value for the density)
+	g0, g1, g2 [maxGroups]float64
 }
 
 func (m *Mixture) setTau(tc *tauCache, T float64) {
@@ -56,14 +57,24 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 			}
 		}
 	}
+	ng := len(ts.grp)
+	g0, g1, g2 := tc.g0[:ng], tc.g1[:ng], tc.g2[:ng]
+	clear(g0)
+	clear(g1)
+	clear(g2)
+	tg, tt1 := ts.tg[:len(ts.list)], ts.tt1[:len(ts.list)]
 	for k := range ts.list {
 		tm := &ts.list[k]
-		tc.nt[k] = tm.n * pw[tm.ti]
+		w := tm.n * pw[tm.ti]
+		g := tg[k]
+		g0[g] += w
+		g1[g] += w * tm.t
+		g2[g] += w * tt1[k]
 	}
-	// B = lim_{delta->0} ar_d / rho_r: the terms with d = 1 at delta = 0.
+	// B = lim_{delta->0} ar_d / rho_r: the groups with d = 1 at delta = 0.
 	var b float64
 	for _, v := range ts.virial {
-		b += tc.nt[v.k] * v.e0
+		b += tc.g0[v.g] * v.e0
 	}
 	tc.B = b / m.dr
 }
@@ -84,43 +95,45 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 	for k := 1; k < len(dp); k++ {
 		dp[k] = dp[k-1] * delta
 	}
-	list := ts.list
-	nt := &tc.nt
+	grp := ts.grp
+	g0, g1, g2 := &tc.g0, &tc.g1, &tc.g2
 	// Polynomial terms: n delta^d tau^t.
-	for k := 0; k < ts.nPoly; k++ {
-		tm := &list[k]
-		F := nt[k] * dp[tm.d]
-		g := float64(tm.d)
+	for k := 0; k < ts.nGPoly; k++ {
+		gr := &grp[k]
+		x := dp[gr.d]
+		F, Ft := g0[k]*x, g1[k]*x
+		g := gr.fd
 		q := g * (g - 1)
 		r.a += F
 		r.d += F * g
 		r.dd += F * q
 		r.ddd += F * q * (g - 2)
-		r.t += F * tm.t
-		r.tt += F * tm.t * (tm.t - 1)
-		r.dt += F * tm.t * g
+		r.t += Ft
+		r.tt += g2[k] * x
+		r.dt += Ft * g
 	}
 	// Pure-fluid exponential terms: n delta^d tau^t exp(-delta^c).
 	var ec [maxC]float64
 	for _, c := range ts.cList {
 		ec[c] = fexp(-dp[c])
 	}
-	end := ts.nPoly + ts.nExp
-	for k := ts.nPoly; k < end; k++ {
-		tm := &list[k]
-		dc := dp[tm.c]
-		F := nt[k] * dp[tm.d] * ec[tm.c]
-		c := float64(tm.c)
-		g := float64(tm.d) - c*dc
+	end := ts.nGPoly + ts.nGEx
+	for k := ts.nGPoly; k < end; k++ {
+		gr := &grp[k]
+		dc := dp[gr.c]
+		x := dp[gr.d] * ec[gr.c]
+		F, Ft := g0[k]*x, g1[k]*x
+		c := gr.fc
+		g := gr.fd - c*dc
 		h := c * c * dc
 		q := g*(g-1) - h
 		r.a += F
 		r.d += F * g
 		r.dd += F * q
 		r.ddd += F * (q*(g-2) - h*(2*g-1+c))
-		r.t += F * tm.t
-		r.tt += F * tm.t * (tm.t - 1)
-		r.dt += F * tm.t * g
+		r.t += Ft
+		r.tt += g2[k] * x
+		r.dt += Ft * g
 	}
 	// Departure exponential terms: n delta^d tau^t exp(-eta (delta-eps)^2 - beta (delta-gamma)).
 	var ee, s1, s2, e2 [maxDepExp]float64
@@ -131,20 +144,21 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta // delta d(s1)/d delta
 		e2[k] = 2 * de.eta * delta * delta
 	}
-	for k := end; k < len(list); k++ {
-		tm := &list[k]
-		e := tm.e
-		F := nt[k] * dp[tm.d] * ee[e]
-		d := float64(tm.d)
+	for k := end; k < len(grp); k++ {
+		gr := &grp[k]
+		e := gr.e
+		x := dp[gr.d] * ee[e]
+		F, Ft := g0[k]*x, g1[k]*x
+		d := gr.fd
 		g := d + s1[e]
 		q := g*g - d - e2[e]
 		r.a += F
 		r.d += F * g
 		r.dd += F * q
 		r.ddd += F * (q*(g-2) + 2*g*s2[e] - 2*e2[e])
-		r.t += F * tm.t
-		r.tt += F * tm.t * (tm.t - 1)
-		r.dt += F * tm.t * g
+		r.t += Ft
+		r.tt += g2[k] * x
+		r.dt += Ft * g
 	}
 	return r
 }
@@ -166,13 +180,13 @@ func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pd
 	for k := 1; k < len(dp); k++ {
 		dp[k] = dp[k-1] * delta
 	}
-	list := ts.list
-	nt := &tc.nt
+	grp := ts.grp
+	g0 := &tc.g0
 	var rd, rdd, rddd float64
-	for k := 0; k < ts.nPoly; k++ {
-		tm := &list[k]
-		F := nt[k] * dp[tm.d]
-		g := float64(tm.d)
+	for k := 0; k < ts.nGPoly; k++ {
+		gr := &grp[k]
+		F := g0[k] * dp[gr.d]
+		g := gr.fd
 		q := g * (g - 1)
 		rd += F * g
 		rdd += F * q
@@ -182,13 +196,13 @@ func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pd
 	for _, c := range ts.cList {
 		ec[c] = fexp(-dp[c])
 	}
-	end := ts.nPoly + ts.nExp
-	for k := ts.nPoly; k < end; k++ {
-		tm := &list[k]
-		dc := dp[tm.c]
-		F := nt[k] * dp[tm.d] * ec[tm.c]
-		c := float64(tm.c)
-		g := float64(tm.d) - c*dc
+	end := ts.nGPoly + ts.nGEx
+	for k := ts.nGPoly; k < end; k++ {
+		gr := &grp[k]
+		dc := dp[gr.c]
+		F := g0[k] * dp[gr.d] * ec[gr.c]
+		c := gr.fc
+		g := gr.fd - c*dc
 		h := c * c * dc
 		q := g*(g-1) - h
 		rd += F * g
@@ -203,11 +217,11 @@ func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pd
 		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta
 		e2[k] = 2 * de.eta * delta * delta
 	}
-	for k := end; k < len(list); k++ {
-		tm := &list[k]
-		e := tm.e
-		F := nt[k] * dp[tm.d] * ee[e]
-		d := float64(tm.d)
+	for k := end; k < len(grp); k++ {
+		gr := &grp[k]
+		e := gr.e
+		F := g0[k] * dp[gr.d] * ee[e]
+		d := gr.fd
 		g := d + s1[e]
 		q := g*g - d - e2[e]
 		rd += F * g
