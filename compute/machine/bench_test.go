@@ -105,3 +105,50 @@ func BenchmarkSensitivityReuse(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkSensitivityReuseOverhead: the cost of the cache itself, on the
+// cheapest fluid (ideal-gas air) at constant inputs. "nouncertainty" is
+// Evaluate without uncertainty (3 flashes); "reuse" is EvaluateWith with 16
+// anchors kept and every evaluation served (3 flashes, anchor search,
+// GUM eq. 16 with the current u); "fresh" runs the central differences.
+func BenchmarkSensitivityReuseOverhead(b *testing.B) {
+	u := Uncertainty{T1: Std{Abs: 0.5}, T2: Std{Abs: 0.5}, P1: Std{Rel: 0.001}, P2: Std{Rel: 0.001}, MassFlow: Std{Rel: 0.01}}
+	spec := Spec{Kind: Compressor, Fluid: idealgas.DryAir(), Inlet: ByPT, Outlet: ByPT, Uncertainty: u}
+	b.Run("nouncertainty", func(b *testing.B) {
+		s := spec
+		s.Uncertainty = Uncertainty{}
+		benchEval(b, &s, &airCompressorIn)
+	})
+	b.Run("fresh", func(b *testing.B) { benchEval(b, &spec, &airCompressorIn) })
+	b.Run("reuse", func(b *testing.B) {
+		var cache Sensitivities
+		// 16 anchors 1.5 u(T1) apart, the one at the evaluated inputs made
+		// last (the search still looks at all of them).
+		fill := func() {
+			cache.Reset()
+			for k := range 16 {
+				in := airCompressorIn
+				in.T1 += float64(15-k) * 1.5 * 0.5
+				if _, err := EvaluateWith(&spec, &in, &cache); err != nil {
+					b.Fatal(err)
+				}
+			}
+		}
+		fill()
+		b.ReportAllocs()
+		for b.Loop() {
+			res, err := EvaluateWith(&spec, &airCompressorIn, &cache)
+			if err != nil {
+				b.Fatal(err)
+			}
+			if res.SensitivityAge == 0 {
+				b.Fatal("sensitivities not reused")
+			}
+			if res.SensitivityAge >= DefaultMaxAge {
+				b.StopTimer()
+				fill()
+				b.StartTimer()
+			}
+		}
+	})
+}

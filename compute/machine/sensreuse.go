@@ -120,8 +120,8 @@ type Sensitivities struct {
 
 	spec    *Spec // the spec the anchors were made for
 	specVal Spec
-	anchors []anchor // oldest first
-	evals   int      // evaluations with uncertainty since the first
+	anchors []anchor
+	evals   int // evaluations with uncertainty since the first
 	fresh   int
 	reused  int
 }
@@ -240,9 +240,11 @@ func (s *Sensitivities) reuse(spec *Spec, x, u *[nIn]float64, corr []uncert.Corr
 	}
 	maxAge := s.maxAge()
 	n := 0
-	for _, a := range s.anchors {
-		if s.evals-a.born <= maxAge {
-			s.anchors[n] = a
+	for i := range s.anchors {
+		if s.evals-s.anchors[i].born <= maxAge {
+			if n != i {
+				s.anchors[n] = s.anchors[i]
+			}
 			n++
 		}
 	}
@@ -344,10 +346,20 @@ func (s *Sensitivities) store(spec *Spec, x, u *[nIn]float64, o *evalOut, define
 	if s.spec == nil {
 		s.spec, s.specVal = spec, *spec
 	}
-	if len(s.anchors) >= s.maxAnchors() {
-		s.anchors = append(s.anchors[:0], s.anchors[len(s.anchors)-s.maxAnchors()+1:]...)
+	if len(s.anchors) < s.maxAnchors() {
+		s.anchors = append(s.anchors, a)
+		return
 	}
-	s.anchors = append(s.anchors, a)
+	// Full: the new anchor takes the place of the oldest (slice order does
+	// not matter; the nearest anchor serves).
+	s.anchors = s.anchors[:s.maxAnchors()]
+	oldest := 0
+	for i := range s.anchors {
+		if s.anchors[i].born < s.anchors[oldest].born {
+			oldest = i
+		}
+	}
+	s.anchors[oldest] = a
 }
 
 // propagation is the uncertainty of every figure of one evaluation: from
