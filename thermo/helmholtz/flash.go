@@ -438,10 +438,14 @@ type edgeSet struct {
 	l, v  thermo.State
 }
 
-// edges returns the phase boundary at p, reusing the last one computed when
-// p is the same (one machine's outlet pressure in a monitoring loop).
+// edges returns the phase boundary at p, reusing one of the last four
+// computed when p is the same (one machine's outlet pressure in a
+// monitoring loop, and its perturbations in an uncertainty propagation).
 func (f *Fluid) edges(p float64, store bool) (edgeSet, error) {
 	if c := f.lastEdges.Load(); c != nil && c.p == p {
+		return *c, nil
+	}
+	if c := f.prevEdges.find(p); c != nil {
 		return *c, nil
 	}
 	e := edgeSet{p: p, pure: !f.pseudoPure}
@@ -477,7 +481,7 @@ func (f *Fluid) edges(p float64, store bool) (edgeSet, error) {
 	}
 	if store {
 		c := e
-		f.lastEdges.Store(&c)
+		f.prevEdges.push(f.lastEdges.Swap(&c))
 	}
 	return e, nil
 }

@@ -58,8 +58,9 @@
 //
 // Everything is SI and mass based: Pa, K, kg/m3, J/kg, J/(kg K), m/s. A
 // *Fluid is shared by New, immutable apart from two lock-free caches (the
-// phase boundary at the last pressure of a (p,h)/(p,s) flash, the last
-// SatT result) and safe for concurrent use.
+// phase boundaries at the last four pressures of (p,h)/(p,s) flashes, the
+// last four saturation states found from a pressure; a hit returns exactly
+// what a new solve would) and safe for concurrent use.
 package helmholtz
 
 import (
@@ -195,10 +196,58 @@ type Fluid struct {
 	ancTolV   float64  // relative widening of the rhoV ancillary for the vapour-branch bound
 
 	// lastSatP caches the latest saturation state found from a pressure
-	// (repeated flashes at one outlet pressure reuse it).
+	// (repeated flashes at one outlet pressure reuse it); prevSatP holds
+	// the three stored before it (an uncertainty propagation visits p,
+	// p + dp, p - dp and p again).
 	lastSatP atomic.Pointer[satPoint]
-	// lastEdges caches the phase boundary of the latest (p,h)/(p,s) flash.
+	prevSatP recentSat
+	// lastEdges caches the phase boundary of the latest (p,h)/(p,s) flash,
+	// prevEdges the three before it.
 	lastEdges atomic.Pointer[edgeSet]
+	prevEdges recentEdges
+}
+
+// recentSat and recentEdges are rings of three cached results, lock-free:
+// a result depends only on its pressure, so a hit returns exactly what a
+// new solve would.
+type recentSat struct {
+	s [3]atomic.Pointer[satPoint]
+	n atomic.Uint32
+}
+
+func (r *recentSat) find(p float64) *satPoint {
+	for i := range r.s {
+		if c := r.s[i].Load(); c != nil && c.p == p {
+			return c
+		}
+	}
+	return nil
+}
+
+func (r *recentSat) push(c *satPoint) {
+	if c != nil {
+		r.s[r.n.Add(1)%3].Store(c)
+	}
+}
+
+type recentEdges struct {
+	s [3]atomic.Pointer[edgeSet]
+	n atomic.Uint32
+}
+
+func (r *recentEdges) find(p float64) *edgeSet {
+	for i := range r.s {
+		if c := r.s[i].Load(); c != nil && c.p == p {
+			return c
+		}
+	}
+	return nil
+}
+
+func (r *recentEdges) push(c *edgeSet) {
+	if c != nil {
+		r.s[r.n.Add(1)%3].Store(c)
+	}
 }
 
 var (

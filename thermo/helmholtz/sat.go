@@ -149,6 +149,9 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 	if c := f.lastSatP.Load(); c != nil && c.p == p {
 		return *c, nil
 	}
+	if c := f.prevSatP.find(p); c != nil {
+		return *c, nil
+	}
 	if !(p > 0) {
 		return satPoint{}, thermo.Below(f.name, "p", "Pa", p, 0, "pressure must be positive")
 	}
@@ -167,7 +170,7 @@ func (f *Fluid) satAtPc(p float64, store bool) (satPoint, error) {
 	}
 	if store {
 		c := sp
-		f.lastSatP.Store(&c)
+		f.prevSatP.push(f.lastSatP.Swap(&c))
 	}
 	return sp, nil
 }

@@ -130,3 +130,55 @@ func TestSatTSlopeErrors(t *testing.T) {
 		t.Errorf("air SatTSlope: %v, want ErrUnsupported", err)
 	}
 }
+
+// clearCaches empties the saturation and phase-boundary caches of f.
+func clearCaches(f *Fluid) {
+	f.lastSatP.Store(nil)
+	f.lastEdges.Store(nil)
+	for i := range f.prevSatP.s {
+		f.prevSatP.s[i].Store(nil)
+		f.prevEdges.s[i].Store(nil)
+	}
+}
+
+// TestSatCacheHitsAreExact: the saturation and phase-boundary caches
+// (the last four pressures) return exactly what a solve with empty caches
+// returns, for a sequence that revisits pressures as an uncertainty
+// propagation does (p, p+dp, p-dp, p, ...); identity, no source.
+func TestSatCacheHitsAreExact(t *testing.T) {
+	f := mustNew(t, "ammonia")
+	clearCaches(f)
+	p0, dp := 1.2e6, 1.2
+	seq := []float64{p0, p0 + dp, p0 - dp, p0, 0.3e6, p0 + dp, 0.3e6 + dp, p0 - dp, p0, 2e6, 0.3e6}
+	type res struct {
+		T, slope float64
+		st       thermo.State
+	}
+	var cached []res
+	for _, p := range seq {
+		T, sl, err := f.SatTSlope(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		st, err := f.Flash(thermo.PS, p, 5500)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cached = append(cached, res{T, sl, st})
+	}
+	for i, p := range seq {
+		clearCaches(f)
+		T, sl, err := f.SatTSlope(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		clearCaches(f)
+		st, err := f.Flash(thermo.PS, p, 5500)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if c := cached[i]; c.T != T || c.slope != sl || c.st != st {
+			t.Errorf("p=%g (call %d): cached T %v slope %v state %+v, fresh %v %v %+v", p, i, c.T, c.slope, c.st, T, sl, st)
+		}
+	}
+}
