@@ -110,7 +110,7 @@ func (f *Fluid) classify(T, p float64) (thermo.Phase, satPoint, error) {
 			return thermo.PhaseVapour, satPoint{}, nil
 		}
 	}
-	sp, err := f.maxwell(T, 0, 0)
+	sp, err := f.maxwellAt(T)
 	if err != nil {
 		return 0, satPoint{}, err
 	}
@@ -197,7 +197,7 @@ func (f *Fluid) flashTX(T, x float64) (thermo.State, error) {
 	if err := f.checkX(x); err != nil {
 		return thermo.State{}, err
 	}
-	sp, err := f.maxwell(T, 0, 0)
+	sp, err := f.maxwellAt(T)
 	if err != nil {
 		return thermo.State{}, err
 	}

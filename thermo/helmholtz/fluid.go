@@ -57,10 +57,11 @@
 //	water-iapws95  IAPWS-95: u = 0, s = 0 for saturated liquid at the triple point
 //
 // Everything is SI and mass based: Pa, K, kg/m3, J/kg, J/(kg K), m/s. A
-// *Fluid is shared by New, immutable apart from two lock-free caches (the
+// *Fluid is shared by New, immutable apart from lock-free caches (the
 // phase boundaries at the last four pressures of (p,h)/(p,s) flashes, the
-// last four saturation states found from a pressure; a hit returns exactly
-// what a new solve would) and safe for concurrent use.
+// last four saturation states found from a pressure, the last three found
+// from a temperature; a hit returns exactly what a new solve would) and
+// safe for concurrent use.
 package helmholtz
 
 import (
@@ -205,6 +206,10 @@ type Fluid struct {
 	// prevEdges the three before it.
 	lastEdges atomic.Pointer[edgeSet]
 	prevEdges recentEdges
+	// byT caches the last three Maxwell solutions at a temperature taken
+	// by the (p,T) flash's phase checks (classify, branchBounds) and by
+	// TX, SatP and Saturated: a propagation repeats T while it perturbs p.
+	byT recentSat
 }
 
 // recentSat and recentEdges are rings of three cached results, lock-free:
@@ -218,6 +223,15 @@ type recentSat struct {
 func (r *recentSat) find(p float64) *satPoint {
 	for i := range r.s {
 		if c := r.s[i].Load(); c != nil && c.p == p {
+			return c
+		}
+	}
+	return nil
+}
+
+func (r *recentSat) findT(T float64) *satPoint {
+	for i := range r.s {
+		if c := r.s[i].Load(); c != nil && c.T == T {
 			return c
 		}
 	}

@@ -273,7 +273,7 @@ func (f *Fluid) branchBounds(T float64, sat *satPoint, liquid bool) (rhoVmax, rh
 	if sat != nil {
 		sp = *sat
 	} else if !f.pseudoPure && T >= 0.98*f.tc {
-		if s, err := f.maxwell(T, 0, 0); err == nil {
+		if s, err := f.maxwellAt(T); err == nil {
 			sp = s
 		}
 	}

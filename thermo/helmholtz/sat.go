@@ -66,6 +66,20 @@ func (f *Fluid) maxwell(T, rl0, rv0 float64) (satPoint, error) {
 	return satPoint{}, fmt.Errorf("%s: Maxwell construction at T = %g K: near-critical march did not reach T: %w", f.name, T, thermo.ErrNoConvergence)
 }
 
+// maxwellAt is maxwell(T, 0, 0) through the cache f.byT (a hit is exactly
+// the solve's result: it depends on T only).
+func (f *Fluid) maxwellAt(T float64) (satPoint, error) {
+	if c := f.byT.findT(T); c != nil {
+		return *c, nil
+	}
+	sp, err := f.maxwell(T, 0, 0)
+	if err == nil {
+		c := sp
+		f.byT.push(&c)
+	}
+	return sp, err
+}
+
 func (f *Fluid) maxwellCore(T, rl0, rv0 float64) (satPoint, error) {
 	if f.pseudoPure {
 		return satPoint{}, fmt.Errorf("%s: pseudo-pure fluid has no Maxwell saturation (bubble and dew states differ): %w", f.name, thermo.ErrUnsupported)
@@ -458,7 +472,7 @@ func (f *Fluid) SatP(T float64) (float64, error) {
 	if err := thermo.CheckFinite(f.name, []string{"T"}, T); err != nil {
 		return 0, err
 	}
-	sp, err := f.maxwell(T, 0, 0)
+	sp, err := f.maxwellAt(T)
 	if err != nil {
 		return 0, err
 	}
@@ -500,7 +514,7 @@ func (f *Fluid) Saturated(T float64) (liquid, vapour thermo.State, err error) {
 	if err = thermo.CheckFinite(f.name, []string{"T"}, T); err != nil {
 		return
 	}
-	sp, err := f.maxwell(T, 0, 0)
+	sp, err := f.maxwellAt(T)
 	if err != nil {
 		return
 	}

@@ -138,6 +138,50 @@ func clearCaches(f *Fluid) {
 	for i := range f.prevSatP.s {
 		f.prevSatP.s[i].Store(nil)
 		f.prevEdges.s[i].Store(nil)
+		f.byT.s[i].Store(nil)
+	}
+}
+
+// TestMaxwellCacheHitsAreExact: (p,T) flashes of CO2 within 2 % of its
+// critical temperature (where the phase checks take the Maxwell solution
+// at T, cached by T) and SatP, Saturated and TX at repeated temperatures
+// give exactly what they give with empty caches; identity, no source.
+func TestMaxwellCacheHitsAreExact(t *testing.T) {
+	f := mustNew(t, "co2")
+	clearCaches(f)
+	type call struct {
+		pair thermo.Pair
+		a, b float64
+	}
+	T1, T2 := 300.0, 302.5 // 0.986 and 0.995 Tc
+	seq := []call{{thermo.PT, 3e6, T1}, {thermo.PT, 3.003e6, T1}, {thermo.PT, 2.997e6, T1}, {thermo.PT, 7.5e6, T2},
+		{thermo.TX, T2, 0.3}, {thermo.PT, 3e6, T1 + 0.01}, {thermo.PT, 3e6, T1}, {thermo.PT, 7.4e6, T2}, {thermo.TX, T1, 1}}
+	var cached []thermo.State
+	for _, c := range seq {
+		st, err := f.Flash(c.pair, c.a, c.b)
+		if err != nil {
+			t.Fatalf("%v %g %g: %v", c.pair, c.a, c.b, err)
+		}
+		cached = append(cached, st)
+	}
+	pc, errc := f.SatP(T2)
+	lc, vc, errs := f.Saturated(T2)
+	for i, c := range seq {
+		clearCaches(f)
+		st, err := f.Flash(c.pair, c.a, c.b)
+		if err != nil || st != cached[i] {
+			t.Errorf("%v %g %g: cached %+v, fresh %+v, %v", c.pair, c.a, c.b, cached[i], st, err)
+		}
+	}
+	clearCaches(f)
+	p, err := f.SatP(T2)
+	if err != nil || errc != nil || p != pc {
+		t.Errorf("SatP(%g): cached %v (%v), fresh %v (%v)", T2, pc, errc, p, err)
+	}
+	clearCaches(f)
+	l, v, err := f.Saturated(T2)
+	if err != nil || errs != nil || l != lc || v != vc {
+		t.Errorf("Saturated(%g) differs between cached and fresh: %v %v", T2, errs, err)
 	}
 }
 
