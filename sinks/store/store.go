@@ -260,7 +260,7 @@ func (s *Store) reject(err error) error {
 // FlushInterval. Errors wrap sinks.ErrInvalid (rejected, counted) or
 // sinks.ErrClosed; a failed commit is counted in Dropped and returned.
 func (s *Store) WriteRecord(ctx context.Context, r compute.Record) error {
-	b, err := sinks.MarshalRecord(r)
+	b, err := marshalRecord(r)
 	if err != nil {
 		return s.reject(fmt.Errorf("store: %w", err))
 	}
@@ -313,15 +313,23 @@ func (s *Store) commit() error {
 	}
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		recs, evs := tx.Bucket(bRecords), tx.Bucket(bEvents)
+		open := map[string]*bolt.Bucket{} // machine buckets of this transaction
 		for _, it := range items {
 			k, err := timeKey(it.t)
 			if err != nil {
 				return err
 			}
 			if it.machine != nil {
-				mb, err := recs.CreateBucketIfNotExists(it.machine)
-				if err != nil {
-					return err
+				mb := open[string(it.machine)]
+				if mb == nil {
+					if mb, err = recs.CreateBucketIfNotExists(it.machine); err != nil {
+						return err
+					}
+					// Keys are times, written mostly in order: fill
+					// pages before splitting them (fewer pages to write;
+					// an insert in the middle still splits as usual).
+					mb.FillPercent = 1
+					open[string(it.machine)] = mb
 				}
 				if err := mb.Put(k, it.value); err != nil {
 					return err
