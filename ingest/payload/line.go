@@ -131,9 +131,9 @@ func (d *Decoder) decodeLines(data []byte, recv time.Time, dst []ingest.Sample, 
 	return dst, errs
 }
 
-// fastLine decodes the everyday line "<name> value=<decimal>[ <integer
+// fastLine decodes the everyday line "<name> value=<number>[ <integer
 // timestamp>]" in one pass: no tag set, no escapes, a single field named
-// value holding a plain decimal (see fastDecimal). It reports false for
+// value holding a number or boolean (parseLPValue). It reports false for
 // every other line, which then goes through parseLine; for the lines it
 // takes it gives what the general path gives (FuzzLineFastPath compares
 // the two on arbitrary input).
@@ -170,7 +170,16 @@ func (d *Decoder) fastLine(line []byte, recv time.Time) (ingest.Sample, bool) {
 	}
 	v, ok := fastDecimal(line[i:j])
 	if !ok {
-		return ingest.Sample{}, false
+		// Other numbers (exponents, 17 significant digits, i/u integers,
+		// booleans) as the general path reads them; strings and errors
+		// are left to it.
+		if i == j || line[i] == '"' {
+			return ingest.Sample{}, false
+		}
+		var err error
+		if v, err = parseLPValue(line[i:j]); err != nil {
+			return ingest.Sample{}, false
+		}
 	}
 	for j < len(line) && line[j] == ' ' {
 		j++

@@ -421,7 +421,12 @@ func TestLineFastPathTakesEverydayLines(t *testing.T) {
 			t.Errorf("%q not taken by the fast path", in)
 		}
 	}
-	for _, in := range []string{"a,t=x value=1", "a value=1,q=2", "a value=1e3", "a value=1 \t", "a x=1"} {
+	for _, in := range []string{"m012.t3 value=40.03999999999999 1764583200123456789", "a value=1e3", "a value=7i", "a value=t", "a value=NaN"} {
+		if _, ok := d.fastLine([]byte(in), recv); !ok {
+			t.Errorf("%q not taken by the fast path", in)
+		}
+	}
+	for _, in := range []string{"a,t=x value=1", "a value=1,q=2", "a value=\"1\"", "a value=1x", "a value=1 \t", "a x=1"} {
 		if _, ok := d.fastLine([]byte(in), recv); ok {
 			t.Errorf("%q taken by the fast path", in)
 		}
