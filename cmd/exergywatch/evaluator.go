@@ -437,6 +437,9 @@ type persisted struct {
 	Alerts   map[string]alert.State        `json:"alerts,omitempty"`
 	Trends   map[string]*trend.EWMA        `json:"trends,omitempty"`
 	LastGood *compute.Record               `json:"last_good,omitempty"`
+	// Daily is the day in progress of the daily aggregates, so a restart
+	// in mid-day neither loses the morning nor credits the downtime.
+	Daily *trend.DailyState `json:"daily,omitempty"`
 }
 
 func (e *evaluator) marshalState() ([]byte, error) {
@@ -451,9 +454,14 @@ func (e *evaluator) marshalState() ([]byte, error) {
 		g := e.lastGood
 		p.LastGood = &g
 	}
+	ds := e.daily.State()
+	p.Daily = &ds
 	return json.Marshal(p)
 }
 
+// restoreState applies a state saved by marshalState. An unreadable state
+// changes nothing; a daily aggregate that no longer fits (the site's time
+// zone changed) is dropped with an error after everything else was applied.
 func (e *evaluator) restoreState(b []byte) error {
 	var p persisted
 	if err := json.Unmarshal(b, &p); err != nil {
@@ -476,6 +484,11 @@ func (e *evaluator) restoreState(b []byte) error {
 	}
 	if p.LastGood != nil {
 		e.lastGood, e.hasGood = *p.LastGood, true
+	}
+	if p.Daily != nil {
+		if err := e.daily.Restore(*p.Daily); err != nil {
+			return fmt.Errorf("%w: the rest of the state was restored; the daily aggregate starts afresh", err)
+		}
 	}
 	return nil
 }
