@@ -309,8 +309,6 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 	loKnown, hiKnown := edge != nil && branch == thermo.PhaseVapour, edge != nil && branch == thermo.PhaseLiquid
 	guess := 0.0 // density of the previous iterate: start of the next density solve
 	fxPrev := math.Inf(1)
-	var xPrev, cpPrev float64 // x and cp of the previous iterate (Halley's curvature)
-	havePrev := false
 	for it := 0; it < 100; it++ {
 		s, r, err := state(T, guess)
 		if err != nil {
@@ -327,23 +325,7 @@ func (f *Fluid) solveT(p, y float64, isH bool, lo, hi float64, branch thermo.Pha
 		} else {
 			lo, loKnown = T, true
 		}
-		// Newton's step in x = T (h) or x = ln T (s), in which the slope is
-		// cp for both; Halley's once a previous iterate gives the curvature
-		// dcp/dx as a secant and the correction is moderate.
-		x, dx := T, -fx/s.Cp
-		if !isH {
-			x = math.Log(T)
-		}
-		if havePrev && x != xPrev {
-			if c := 1 + 0.5*dx*(s.Cp-cpPrev)/(x-xPrev)/s.Cp; c >= 0.5 && c <= 2 {
-				dx /= c
-			}
-		}
-		xPrev, cpPrev, havePrev = x, s.Cp, true
-		Tn := T + dx
-		if !isH {
-			Tn = T * math.Exp(dx)
-		}
+		Tn := T - fx/d
 		if !(d > 0) || math.IsNaN(Tn) {
 			Tn = math.NaN()
 		}
