@@ -338,17 +338,25 @@ func (c *resolved) satCheck(port string, p, T, uT, up float64) (near bool, err e
 	if c.sat == nil || p >= c.pc {
 		return false, nil
 	}
-	ts, err := c.sat.SatT(p)
-	if err != nil {
-		// Outside the saturation range of the model (e.g. below the triple
-		// point): no boundary to be near; the flash decides.
-		return false, nil
-	}
-	dp := 1e-6 * p
-	ts2, err := c.sat.SatT(p + dp)
-	dTdp := 0.0
-	if err == nil {
-		dTdp = (ts2 - ts) / dp
+	var ts, dTdp float64
+	if ss, ok := c.sat.(thermo.SaturationSlope); ok {
+		// One saturation solve gives Tsat and its slope (Clausius–Clapeyron
+		// or the analytic derivative of the model's saturation curve).
+		var err error
+		if ts, dTdp, err = ss.SatTSlope(p); err != nil {
+			// Outside the saturation range of the model (e.g. below the
+			// triple point): no boundary to be near; the flash decides.
+			return false, nil
+		}
+	} else {
+		var err error
+		if ts, err = c.sat.SatT(p); err != nil {
+			return false, nil // as above
+		}
+		dp := 1e-6 * p
+		if ts2, err := c.sat.SatT(p + dp); err == nil {
+			dTdp = (ts2 - ts) / dp
+		}
 	}
 	band := math.Max(minFixBand, uncert.K95*math.Hypot(uT, dTdp*up))
 	d := T - ts
