@@ -191,14 +191,18 @@ func (d *Decoder) fastLine(line []byte, recv time.Time) (ingest.Sample, bool) {
 			rest = rest[:len(rest)-1]
 		}
 		ts, ok := parseInt64(rest) // false when empty: the general path reports it
-		p := d.Precision
-		if p <= 0 {
-			p = time.Nanosecond
-		}
-		if !ok || ts > maxLineNanos/int64(p) || ts < -maxLineNanos/int64(p) {
+		if !ok {
 			return ingest.Sample{}, false
 		}
-		smp.SourceTime = time.Unix(0, ts*int64(p)).UTC()
+		if p := d.Precision; p > time.Nanosecond {
+			if ts > maxLineNanos/int64(p) || ts < -maxLineNanos/int64(p) {
+				return ingest.Sample{}, false
+			}
+			ts *= int64(p)
+		} else if ts < -maxLineNanos { // the general path's bound (no division for ns)
+			return ingest.Sample{}, false
+		}
+		smp.SourceTime = time.Unix(0, ts).UTC()
 	}
 	smp.Tag = d.name(name)
 	return smp, true
