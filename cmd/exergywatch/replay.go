@@ -27,6 +27,7 @@ package main
 import (
 	"bufio"
 	"bytes"
+	"cmp"
 	"context"
 	"errors"
 	"flag"
@@ -38,6 +39,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"runtime/debug"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -889,6 +891,12 @@ type replayOptions struct {
 	// progress, when set, is called from one goroutine every progressEvery.
 	progress      func(replayProgress)
 	progressEvery time.Duration
+	// rebalanceAfter, rebalanceEvery (ticks) and rebalanceGain (the
+	// fraction of the current largest worker load the new assignment must
+	// stay under) steer the assignment of machines to workers; zero:
+	// the constants of the same names (tests set them).
+	rebalanceAfter, rebalanceEvery uint64
+	rebalanceGain                  float64
 }
 
 type replayProgress struct {
@@ -912,10 +920,14 @@ type replayResult struct {
 	First, Last      time.Time
 	Wall             time.Duration
 	CPU              time.Duration // user+system CPU time of the process during the replay
+	Workers          int           // evaluation goroutines
+	Busy             time.Duration // time the workers spent evaluating, summed over them
+	Rebalances       int           // reassignments of machines to workers by measured cost
 }
 
 type replayWorker struct {
 	in        chan []*align.Snapshot
+	busy      int64 // ns spent evaluating (owned by the worker goroutine)
 	evals     uint64
 	q         [4]uint64
 	trans     uint64
@@ -956,17 +968,20 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 		workers = runtime.GOMAXPROCS(0)
 	}
 	workers = max(1, min(workers, len(p.order)))
+	rbAfter, rbEvery, rbGain := cmp.Or(opt.rebalanceAfter, rebalanceAfter), cmp.Or(opt.rebalanceEvery, rebalanceEvery), cmp.Or(opt.rebalanceGain, rebalanceGain)
 	// Machines go round-robin to the workers first; after rebalanceAfter
 	// ticks the measured cost of each machine (a gas compressor on
 	// GERG-2008 costs ten times a pump on IF97) reassigns them, largest
-	// first, to the least loaded worker.
+	// first, to the least loaded worker. Costs change with the plant's
+	// life (machines stop, loads change), so every rebalanceEvery ticks
+	// the costs of the ticks since the last assignment are looked at again.
 	route := map[string]int{}
 	index := map[string]int{}
 	for i, id := range p.order {
 		route[id] = i % workers
 		index[id] = i
 	}
-	cost := make([]atomic.Int64, len(p.order)) // ns spent per machine
+	cost := make([]atomic.Int64, len(p.order)) // ns spent per machine since the last assignment
 	// Sink queue limits: records handed to the workers but not yet written
 	// (inflight) plus the records in a sink's queue stay under three
 	// quarters of that queue's bound (Multi drops what does not fit; a
@@ -997,9 +1012,11 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 					t0 := time.Now()
 					k, known := index[s.Machine]
 					w.add(p.evaluateOne(wctx, s))
+					d := int64(time.Since(t0))
 					if known {
-						cost[k].Add(int64(time.Since(t0)))
+						cost[k].Add(d)
 					}
+					w.busy += d
 					inflight.Add(-1)
 				}
 			}
@@ -1091,18 +1108,27 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 		}
 		res.Ticks++
 		lastTick.Store(t.UnixNano())
-		if res.Ticks == rebalanceAfter && workers > 1 {
-			// Moving a machine between workers is safe only when none of
-			// its snapshots is still queued: wait for the workers to drain.
-			for inflight.Load() > 0 {
-				time.Sleep(50 * time.Microsecond)
-			}
+		if workers > 1 && (res.Ticks == rbAfter || res.Ticks > rbAfter && (res.Ticks-rbAfter)%rbEvery == 0) {
 			c := make([]int64, len(cost))
 			for i := range cost {
-				c[i] = cost[i].Load()
+				c[i] = cost[i].Swap(0)
 			}
-			for i, w := range assignLPT(c, workers) {
-				route[p.order[i]] = w
+			now := make([]int, len(c))
+			for i, id := range p.order {
+				now[i] = route[id]
+			}
+			next := assignLPT(c, workers)
+			// Moving a machine between workers is safe only when none of
+			// its snapshots is still queued: wait for the workers to drain
+			// (a short pause), unless the new assignment gains little.
+			if float64(makespan(c, next, workers)) < rbGain*float64(makespan(c, now, workers)) {
+				for inflight.Load() > 0 {
+					time.Sleep(50 * time.Microsecond)
+				}
+				for i, w := range next {
+					route[p.order[i]] = w
+				}
+				res.Rebalances++
 			}
 		}
 	}
@@ -1158,7 +1184,9 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 	wg.Wait()
 	close(stopProgress)
 	<-progressDone
+	res.Workers = workers
 	for _, w := range ws {
+		res.Busy += time.Duration(w.busy)
 		res.Evaluations += w.evals
 		for q, c := range w.q {
 			if c > 0 {
@@ -1175,8 +1203,23 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 }
 
 // rebalanceAfter is the tick after which machines are reassigned to the
-// evaluation workers by measured cost.
-const rebalanceAfter = 64
+// evaluation workers by measured cost; rebalanceEvery is the number of
+// ticks after which the costs are looked at again.
+const (
+	rebalanceAfter = 64
+	rebalanceEvery = 1440
+	rebalanceGain  = 0.97
+)
+
+// makespan is the largest load of a worker when job j of cost costs[j]
+// runs on worker assign[j].
+func makespan(costs []int64, assign []int, workers int) int64 {
+	load := make([]int64, workers)
+	for j, w := range assign {
+		load[w] += costs[j]
+	}
+	return slices.Max(load)
+}
 
 // assignLPT assigns jobs of the given costs to workers, largest first, each
 // to the currently least loaded worker (longest processing time first).

@@ -1,6 +1,6 @@
 package main
 
-// The replay readers' fast paths against the general code they replace:
+// The replay's fast paths against the general code they replace:
 // the hand-written RFC 3339 and Unix-millisecond readers against
 // time.Parse/strconv (the reference is the earlier parseTime, kept here
 // verbatim), and the ring-plus-heap reorder buffer and the key-heap merge
@@ -9,15 +9,20 @@ package main
 import (
 	"bytes"
 	"container/heap"
+	"context"
 	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
 	"time"
 
+	"github.com/exergywatch/exergywatch/compute"
+	"github.com/exergywatch/exergywatch/config"
 	"github.com/exergywatch/exergywatch/ingest"
 )
 
@@ -314,5 +319,68 @@ func TestReorderAndMergeMatchReference(t *testing.T) {
 				t.Fatal("the failing file did not fail")
 			}
 		})
+	}
+}
+
+// Reassigning machines to workers while a replay runs changes nothing in
+// what is written: the committed history replayed on one worker and on two
+// workers reassigned every other tick gives the same records (times,
+// qualities, reasons, every figure bit for bit).
+func TestReplayRebalanceKeepsRecords(t *testing.T) {
+	run := func(opt replayOptions) (replayResult, map[string][]compute.Record) {
+		dir := t.TempDir()
+		cfg, err := config.Load(replayConfig(t, dir, 1, time.Second, 2*time.Second))
+		if err != nil {
+			t.Fatal(err)
+		}
+		p, err := buildPipeline(cfg, pipelineOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var rej rejects
+		in, err := openInputs([]string{replayCSV}, "auto", time.Nanosecond, &rej)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer in.Close()
+		res, err := replay(context.Background(), p, in, opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := p.close(); err != nil {
+			t.Fatal(err)
+		}
+		return res, rpReadStore(t, filepath.Join(dir, "history.db"))
+	}
+	_, one := run(replayOptions{workers: 1})
+	res, two := run(replayOptions{workers: 2, rebalanceAfter: 3, rebalanceEvery: 2, rebalanceGain: 10})
+	if res.Rebalances < 50 {
+		t.Fatalf("%d reassignments in %d ticks, want one every other tick", res.Rebalances, res.Ticks)
+	}
+	if len(one) != 6 || len(two) != len(one) {
+		t.Fatalf("%d and %d machines in the stores, want 6", len(one), len(two))
+	}
+	n := 0
+	for id, want := range one {
+		got := two[id]
+		if len(got) != len(want) {
+			t.Fatalf("%s: %d records, %d on one worker", id, len(got), len(want))
+		}
+		for i := range want {
+			a, b := want[i], got[i]
+			same := a.Time.Equal(b.Time) && a.Quality == b.Quality && slices.Equal(a.Reasons, b.Reasons) && len(a.Figures) == len(b.Figures)
+			for k := 0; same && k < len(a.Figures); k++ {
+				fa, fb := a.Figures[k], b.Figures[k]
+				same = fa.Name == fb.Name && fa.Quality == fb.Quality && math.Float64bits(fa.Value) == math.Float64bits(fb.Value) &&
+					math.Float64bits(fa.U95) == math.Float64bits(fb.U95) && fa.HasU95 == fb.HasU95 && slices.Equal(fa.Reasons, fb.Reasons)
+			}
+			if !same {
+				t.Fatalf("%s record %d differs:\n one worker %+v\n rebalanced %+v", id, i, a, b)
+			}
+			n++
+		}
+	}
+	if n != 720 {
+		t.Fatalf("%d records compared, want 720", n)
 	}
 }

@@ -604,7 +604,10 @@ func (s *synthPlant) progress() float64 { return float64(s.i) / float64(s.steps)
 // inside s/op, for day and week it is not. A real replay parses files
 // instead (BenchmarkReplayParse). Metrics: s/op is the wall time of the
 // span; cpu-s/op the process CPU time per run (both cores busy: about
-// twice s/op); samples/s and evals/s the throughput.
+// twice s/op); worker-util the share of the replay's wall time the
+// evaluation workers spent evaluating (1: never idle; on a shared machine
+// time taken by other processes counts as busy); samples/s and evals/s
+// the throughput.
 // Issue 6's target: a year of 1-minute data for 20 machines in under 60 s.
 //
 //	go test -run XXX -bench 'Replay/year' -benchtime 1x ./cmd/exergywatch/
@@ -682,6 +685,7 @@ func BenchmarkReplay(b *testing.B) {
 				b.ReportMetric(float64(res.Samples)/secs, "samples/s")
 				b.ReportMetric(float64(res.Evaluations)/secs, "evals/s")
 				b.ReportMetric(float64(res.Evaluations), "evals/op")
+				b.ReportMetric(res.Busy.Seconds()/(float64(res.Workers)*res.Wall.Seconds()), "worker-util")
 				b.ReportMetric(float64(res.ByQuality[compute.QualityGood])/float64(max(res.Evaluations, 1)), "good-fraction")
 			})
 		}
@@ -891,6 +895,9 @@ func TestAssignLPT(t *testing.T) {
 		slices.Sort(load)
 		if !slices.Equal(load, tc.want) {
 			t.Errorf("assignLPT(%v, %d) loads %v, want %v", tc.costs, tc.workers, load, tc.want)
+		}
+		if m := makespan(tc.costs, got, tc.workers); m != tc.want[len(tc.want)-1] {
+			t.Errorf("makespan %d, want %d", m, tc.want[len(tc.want)-1])
 		}
 	}
 }
