@@ -111,7 +111,7 @@ func daySamples(b *testing.B) []ingest.Sample {
 }
 
 // BenchmarkReplayParse reads a day of 1-minute data of 4 plant copies
-// (136 tags, 195 896 rows) as `exergywatch simulate` writes it, through the
+// (136 tags, 195 976 rows) as `exergywatch simulate` writes it, through the
 // replay's readers (openInputs: line reader, parser, reorder buffer, merge):
 // one CSV file, one line-protocol file, and the same CSV split into one file
 // per tag (136-way merge). samples/s is on one goroutine (the replay reads
