@@ -884,6 +884,100 @@ func openInputs(names []string, format string, precision time.Duration, rej *rej
 	return fs, nil
 }
 
+// prefetchSize is the number of samples the reading goroutine hands over
+// at a time.
+const prefetchSize = 4096
+
+// prefetch reads a replay source on a goroutine of its own, prefetchSize
+// samples at a time and up to four batches ahead, so that parsing the
+// input overlaps aligning and evaluating it: the goroutine that feeds the
+// alignment engine would otherwise do both, one after the other. The
+// samples come out in the source's order; an error comes after the samples
+// read before it. progress is the source's progress at the end of the
+// current batch. close stops the goroutine (it finishes the batch it is
+// reading) and must be called once.
+type prefetch struct {
+	ch   chan prefetchBatch
+	free chan []ingest.Sample // consumed batches, for reuse
+	stop chan struct{}
+	done chan struct{}
+	cur  prefetchBatch
+	i    int
+}
+
+type prefetchBatch struct {
+	s    []ingest.Sample
+	err  error
+	end  bool
+	frac float64
+}
+
+func newPrefetch(src replaySource) *prefetch {
+	p := &prefetch{ch: make(chan prefetchBatch, 4), free: make(chan []ingest.Sample, 8), stop: make(chan struct{}), done: make(chan struct{})}
+	go func() {
+		defer close(p.done)
+		for {
+			var buf []ingest.Sample
+			select {
+			case buf = <-p.free:
+				buf = buf[:0]
+			default:
+				buf = make([]ingest.Sample, 0, prefetchSize)
+			}
+			var b prefetchBatch
+			for len(buf) < prefetchSize {
+				s, ok, err := src.next()
+				if err != nil {
+					b.err = err
+					break
+				}
+				if !ok {
+					b.end = true
+					break
+				}
+				buf = append(buf, s)
+			}
+			b.s, b.frac = buf, src.progress()
+			select {
+			case p.ch <- b:
+			case <-p.stop:
+				return
+			}
+			if b.err != nil || b.end {
+				return
+			}
+		}
+	}()
+	return p
+}
+
+func (p *prefetch) next() (ingest.Sample, bool, error) {
+	for p.i >= len(p.cur.s) {
+		switch {
+		case p.cur.err != nil:
+			return ingest.Sample{}, false, p.cur.err
+		case p.cur.end:
+			return ingest.Sample{}, false, nil
+		}
+		if p.cur.s != nil {
+			select {
+			case p.free <- p.cur.s:
+			default:
+			}
+		}
+		p.cur, p.i = <-p.ch, 0
+	}
+	p.i++
+	return p.cur.s[p.i-1], true, nil
+}
+
+func (p *prefetch) progress() float64 { return p.cur.frac }
+
+func (p *prefetch) close() {
+	close(p.stop)
+	<-p.done
+}
+
 // replayOptions steer one replay.
 type replayOptions struct {
 	from, to time.Time // zero: unbounded; to is exclusive
@@ -1132,10 +1226,12 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 			}
 		}
 	}
+	pf := newPrefetch(src)
+	defer pf.close()
 	var runErr error
 	n := 0
 	for {
-		s, ok, err := src.next()
+		s, ok, err := pf.next()
 		if err != nil {
 			runErr = err
 			break
@@ -1145,7 +1241,7 @@ func replay(ctx context.Context, p *pipeline, src replaySource, opt replayOption
 		}
 		n++
 		if n&4095 == 0 {
-			frac.Store(uint64(src.progress() * 1e6))
+			frac.Store(uint64(pf.progress() * 1e6))
 			if ctx.Err() != nil {
 				runErr = ctx.Err()
 				break

@@ -6,6 +6,7 @@ package main
 
 import (
 	"bufio"
+	"context"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -272,4 +273,65 @@ func BenchmarkReplayAlign(b *testing.B) {
 	b.ReportMetric(float64(evalNs.Nanoseconds()+ingestNs.Nanoseconds())/float64(samples), "ns/sample")
 	b.ReportMetric(float64(mallocs)/float64(samples), "allocs/sample")
 	b.ReportMetric(float64(cpu.Nanoseconds())/float64(samples), "cpu-ns/sample")
+}
+
+// BenchmarkReplayFeed is the replay without the machine models: a day of
+// 1-minute data of 4 plant copies read from a file (as `exergywatch
+// simulate` writes it), merged, aligned and ticked by replay, with the
+// evaluators removed so each snapshot is released unevaluated. It is the
+// cost per sample of everything around the models, and its samples/s the
+// most a replay from files can reach however fast the models become.
+func BenchmarkReplayFeed(b *testing.B) {
+	ss := daySamples(b)
+	dir := b.TempDir()
+	for _, tc := range []struct {
+		name      string
+		lineProto bool
+	}{{"csv", false}, {"line", true}} {
+		b.Run(tc.name, func(b *testing.B) {
+			path := filepath.Join(dir, "day."+tc.name)
+			if err := writeSynth(path, ss, tc.lineProto); err != nil {
+				b.Fatal(err)
+			}
+			cfg, err := config.Load(replayConfig(b, b.TempDir(), 4, time.Minute, time.Minute))
+			if err != nil {
+				b.Fatal(err)
+			}
+			cfg.Sinks = nil
+			var cpu time.Duration
+			n := uint64(0)
+			for b.Loop() {
+				b.StopTimer()
+				p, err := buildPipeline(cfg, pipelineOptions{})
+				if err != nil {
+					b.Fatal(err)
+				}
+				clear(p.evals)
+				var rej rejects
+				in, err := openInputs([]string{path}, "auto", time.Nanosecond, &rej)
+				if err != nil {
+					b.Fatal(err)
+				}
+				cpu0 := cpuTime()
+				b.StartTimer()
+				res, err := replay(context.Background(), p, in, replayOptions{})
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.StopTimer()
+				cpu += cpuTime() - cpu0
+				in.Close()
+				if err := p.close(); err != nil {
+					b.Fatal(err)
+				}
+				if res.Samples != uint64(len(ss)) || res.Evaluations != 0 {
+					b.Fatalf("%d samples, %d evaluations; want %d, 0", res.Samples, res.Evaluations, len(ss))
+				}
+				n += res.Samples
+				b.StartTimer()
+			}
+			b.ReportMetric(float64(n)/b.Elapsed().Seconds(), "samples/s")
+			b.ReportMetric(float64(cpu.Nanoseconds())/float64(n), "cpu-ns/sample")
+		})
+	}
 }

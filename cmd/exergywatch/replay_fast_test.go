@@ -324,7 +324,7 @@ func TestReorderAndMergeMatchReference(t *testing.T) {
 
 // Reassigning machines to workers while a replay runs changes nothing in
 // what is written: the committed history replayed on one worker and on two
-// workers reassigned every other tick gives the same records (times,
+// workers reassigned up to every other tick gives the same records (times,
 // qualities, reasons, every figure bit for bit).
 func TestReplayRebalanceKeepsRecords(t *testing.T) {
 	run := func(opt replayOptions) (replayResult, map[string][]compute.Record) {
@@ -354,8 +354,10 @@ func TestReplayRebalanceKeepsRecords(t *testing.T) {
 	}
 	_, one := run(replayOptions{workers: 1})
 	res, two := run(replayOptions{workers: 2, rebalanceAfter: 3, rebalanceEvery: 2, rebalanceGain: 10})
-	if res.Rebalances < 50 {
-		t.Fatalf("%d reassignments in %d ticks, want one every other tick", res.Rebalances, res.Ticks)
+	// A check right after a reassignment may find no evaluation done since
+	// (no cost, nothing to gain): not every check reassigns.
+	if res.Rebalances < 20 {
+		t.Fatalf("%d reassignments in %d ticks, want at least 20 (a check every other tick)", res.Rebalances, res.Ticks)
 	}
 	if len(one) != 6 || len(two) != len(one) {
 		t.Fatalf("%d and %d machines in the stores, want 6", len(one), len(two))
@@ -382,5 +384,65 @@ func TestReplayRebalanceKeepsRecords(t *testing.T) {
 	}
 	if n != 720 {
 		t.Fatalf("%d records compared, want 720", n)
+	}
+}
+
+// progressSource is a listSource with the replay source's progress.
+type progressSource struct{ listSource }
+
+func (p *progressSource) progress() float64 {
+	if len(p.s) == 0 {
+		return 1
+	}
+	return float64(p.i) / float64(len(p.s))
+}
+
+// endless yields samples for ever.
+type endless struct{ n int }
+
+func (e *endless) next() (ingest.Sample, bool, error) {
+	e.n++
+	return ingest.Sample{Tag: "x", Value: float64(e.n)}, true, nil
+}
+func (e *endless) progress() float64 { return 0 }
+
+// The reading goroutine hands over the source's samples in order, then the
+// source's error or its end, for batch-sized and odd lengths; closing it
+// early stops it even when nobody reads.
+func TestPrefetchKeepsTheStream(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 8))
+	for _, n := range []int{0, 1, prefetchSize - 1, prefetchSize, prefetchSize + 1, 3*prefetchSize + 17} {
+		for _, fail := range []bool{false, true} {
+			src := &progressSource{listSource{s: disordered(rng, 0, n, 0, 0, 0)}}
+			if fail {
+				src.err = ErrHeader
+			}
+			want := append([]ingest.Sample(nil), src.s...)
+			p := newPrefetch(src)
+			got, err := drain(t, p)
+			if fail != errors.Is(err, ErrHeader) || !fail && err != nil {
+				t.Fatalf("n=%d fail=%v: error %v", n, fail, err)
+			}
+			if i, ok := sameSamples(got, want); !ok {
+				t.Fatalf("n=%d fail=%v: %d samples, want %d; first difference at %d", n, fail, len(got), len(want), i)
+			}
+			if n > 0 && p.progress() != 1 {
+				t.Errorf("n=%d: progress %v at the end, want 1", n, p.progress())
+			}
+			p.close()
+		}
+	}
+	p := newPrefetch(&endless{})
+	for i := 0; i < 10; i++ {
+		if s, ok, err := p.next(); !ok || err != nil || s.Value != float64(i+1) {
+			t.Fatalf("sample %d: %v %v %v", i, s.Value, ok, err)
+		}
+	}
+	stopped := make(chan struct{})
+	go func() { p.close(); close(stopped) }()
+	select {
+	case <-stopped:
+	case <-time.After(10 * time.Second):
+		t.Fatal("the reading goroutine did not stop")
 	}
 }
