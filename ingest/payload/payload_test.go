@@ -261,7 +261,9 @@ func FuzzParseInt64(f *testing.F) {
 func FuzzFastDecimal(f *testing.F) {
 	for _, s := range []string{"0", "-0", "12.5", "-3.25", "450.45", "0.1", "9007199254740992", "9007199254740993",
 		"900719925474099.9", "1.0000000000000000000001", "0.0000000000000000000001", "1e3", "+1", ".5", "5.", "1_0", "", "-", "007.5",
-		"123456789012345678901234567890", "2.2250738585072014", "-0.000"} {
+		"123456789012345678901234567890", "2.2250738585072014", "-0.000", "40.03999999999999", "0.30000000000000004",
+		"18446744073709551615", "1844674407370955161.5", "9007199254740993.5", "0.1000000000000000055511151231257827",
+		"4503599627370497.5", "9007199254740995", "1.7976931348623157", "4.9406564584124654", "0.0000000000000000001"} {
 		f.Add(s)
 	}
 	f.Fuzz(func(t *testing.T, s string) {
@@ -277,12 +279,14 @@ func FuzzFastDecimal(f *testing.F) {
 }
 
 func TestFastDecimalAnswersEverydayForms(t *testing.T) {
-	for _, s := range []string{"0", "-0", "12.5", "-3.25", "450.45", "3000", "0.001", "101325", "-273.15", "9007199254740992"} {
+	for _, s := range []string{"0", "-0", "12.5", "-3.25", "450.45", "3000", "0.001", "101325", "-273.15", "9007199254740992",
+		"9007199254740993", "40.03999999999999", "450.44999999999993", "3002.9999999999995", "18446744073709551606"} {
 		if _, ok := fastDecimal([]byte(s)); !ok {
 			t.Errorf("%q: fast path refused", s)
 		}
 	}
-	for _, s := range []string{"1e3", "+1", ".5", "5.", "", "-", "NaN", "9007199254740993", "1.00000000000000000000001", "1_0"} {
+	for _, s := range []string{"1e3", "+1", ".5", "5.", "", "-", "NaN", "1.00000000000000000000001", "1_0",
+		"18446744073709551616", "0.00000000000000000000001"} {
 		if _, ok := fastDecimal([]byte(s)); ok {
 			t.Errorf("%q: fast path answered", s)
 		}
@@ -468,6 +472,44 @@ func FuzzJSONScannerGrammar(f *testing.F) {
 				return
 			}
 			t.Fatalf("%q: scanner says valid=%v, json.Valid %v", data, ours, want)
+		}
+	})
+}
+
+// FuzzFastDecimalDigits drives the 64-bit digit path: any integer mantissa
+// with 0..22 decimals, written out, must parse bit for bit as strconv does
+// (or be refused).
+func FuzzFastDecimalDigits(f *testing.F) {
+	for _, c := range []struct {
+		m uint64
+		k uint8
+	}{{4003999999999999, 14}, {45044999999999993, 14}, {math.MaxUint64, 0}, {math.MaxUint64, 19}, {1<<53 + 1, 0},
+		{9007199254740993, 16}, {30000000000000004, 17}, {1, 19}, {12345678901234567, 3}} {
+		f.Add(c.m, c.k, false)
+	}
+	f.Fuzz(func(t *testing.T, m uint64, k uint8, neg bool) {
+		digits := strconv.FormatUint(m, 10)
+		n := int(k % 23)
+		for len(digits) <= n {
+			digits = "0" + digits
+		}
+		s := digits
+		if n > 0 {
+			s = digits[:len(digits)-n] + "." + digits[len(digits)-n:]
+		}
+		if neg {
+			s = "-" + s
+		}
+		got, ok := fastDecimal([]byte(s))
+		if !ok {
+			if m < 1e18 && n <= 19 {
+				t.Fatalf("%q refused", s)
+			}
+			return
+		}
+		want, err := strconv.ParseFloat(s, 64)
+		if err != nil || math.Float64bits(got) != math.Float64bits(want) {
+			t.Fatalf("%q: fast %v (%x), strconv %v (%x)", s, got, math.Float64bits(got), want, math.Float64bits(want))
 		}
 	})
 }
