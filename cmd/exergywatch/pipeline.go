@@ -224,8 +224,32 @@ func buildPipeline(cfg *config.Config, opt pipelineOptions) (p *pipeline, err er
 	if err := p.reg.Register(sinks.NewCollector(p.multi.Stats)); err != nil {
 		return nil, err
 	}
+	var ua trustCollectors
+	for _, s := range p.sources {
+		if u, ok := s.src.(*opcuasrc.Source); ok {
+			ua = append(ua, u.Collector())
+		}
+	}
+	if len(ua) > 0 {
+		if err := p.reg.Register(ua); err != nil {
+			return nil, err
+		}
+	}
 	p.registerMetrics()
 	return p, nil
+}
+
+// trustCollectors gathers the server-certificate metrics of every OPC UA
+// source (refusals, expiry, checks turned off) under one registration: the
+// sources share metric descriptors and differ by their endpoint label.
+type trustCollectors []prometheus.Collector
+
+func (t trustCollectors) Describe(ch chan<- *prometheus.Desc) { t[0].Describe(ch) }
+
+func (t trustCollectors) Collect(ch chan<- prometheus.Metric) {
+	for _, c := range t {
+		c.Collect(ch)
+	}
 }
 
 func (p *pipeline) registerMetrics() {
