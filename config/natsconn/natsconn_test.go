@@ -15,56 +15,8 @@ import (
 	"gopkg.in/yaml.v3"
 
 	"github.com/exergywatch/exergywatch/config/tlsconf"
-	"github.com/exergywatch/exergywatch/ingest/natsrc"
 )
 
-// yamlKeys maps the YAML keys of a struct type (following inline fields) to
-// their field types.
-func yamlKeys(t reflect.Type, out map[string]reflect.Type) {
-	for i := 0; i < t.NumField(); i++ {
-		f := t.Field(i)
-		name, opts, _ := strings.Cut(f.Tag.Get("yaml"), ",")
-		if strings.Contains(opts, "inline") {
-			yamlKeys(f.Type, out)
-			continue
-		}
-		if name != "" && name != "-" {
-			out[name] = f.Type
-		}
-	}
-}
-
-// The shared settings must mean what the NATS source's keys mean until the
-// source uses this package: same keys, same Go kinds, same TLS keys.
-func TestKeysMatchNATSSource(t *testing.T) {
-	ours, src := map[string]reflect.Type{}, map[string]reflect.Type{}
-	yamlKeys(reflect.TypeOf(Settings{}), ours)
-	yamlKeys(reflect.TypeOf(natsrc.Config{}), src)
-	for k, ty := range ours {
-		sty, ok := src[k]
-		if !ok {
-			t.Errorf("key %q is not a key of the NATS source", k)
-			continue
-		}
-		if k == "tls" {
-			a, b := map[string]reflect.Type{}, map[string]reflect.Type{}
-			yamlKeys(ty.Elem(), a)
-			yamlKeys(sty.Elem(), b)
-			if !reflect.DeepEqual(a, b) {
-				t.Errorf("tls keys %v, the source has %v", a, b)
-			}
-			continue
-		}
-		if ty != sty {
-			t.Errorf("key %q: %v here, %v in the source", k, ty, sty)
-		}
-	}
-	for _, k := range []string{"urls", "name", "user", "password", "token", "nkey_seed_file", "credentials_file", "tls", "reconnect_wait", "reconnect_buffer_bytes"} {
-		if _, ok := ours[k]; !ok {
-			t.Errorf("key %q missing", k)
-		}
-	}
-}
 
 func TestDecodeYAML(t *testing.T) {
 	doc := "urls: [tls://a:4222, tls://b:4222]\nname: exw\nuser: u\npassword: p\nreconnect_wait: 250ms\nreconnect_buffer_bytes: 65536\ntls: {ca_file: /ca.pem, server_name: nats.example}\n"

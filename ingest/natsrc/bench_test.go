@@ -9,6 +9,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/exergywatch/exergywatch/config/natsconn"
 	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/ingest/align"
 	"github.com/exergywatch/exergywatch/ingest/tagmap"
@@ -153,10 +154,10 @@ func pipelineRunMode(b *testing.B, url string, n, perMsg int, mode string, publi
 		b.Fatal(err)
 	}
 	q := ingest.NewQueue(256, met)
-	cfg := Config{URLs: []string{url}, Subjects: []string{"bench.>"}, Mode: ModeJetStream, Stream: "BENCH",
+	cfg := Config{Settings: natsconn.Settings{URLs: []string{url}}, Subjects: []string{"bench.>"}, Mode: ModeJetStream, Stream: "BENCH",
 		Durable: fmt.Sprintf("ew%d", n), FetchBatch: 512, AckFlush: 20 * time.Millisecond}
 	if mode == ModeCore {
-		cfg = Config{URLs: []string{url}, Subjects: []string{"benchc.>"}, Mode: ModeCore,
+		cfg = Config{Settings: natsconn.Settings{URLs: []string{url}}, Subjects: []string{"benchc.>"}, Mode: ModeCore,
 			PendingMsgs: int(e2eMsgs) + 16, PendingBytes: 1 << 30}
 	}
 	src, err := New(cfg, q, met, quietLog(), nil)

@@ -32,17 +32,14 @@ package natsrc
 
 import (
 	"context"
-	"crypto/tls"
-	"crypto/x509"
 	"errors"
 	"fmt"
 	"log/slog"
-	"os"
-	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
 
+	"github.com/exergywatch/exergywatch/config/natsconn"
 	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/ingest/payload"
 	"github.com/nats-io/nats.go"
@@ -57,8 +54,13 @@ const (
 
 // Config is the NATS source configuration.
 type Config struct {
-	URLs     []string `yaml:"urls"`     // nats://host:4222, tls://host:4222
-	Name     string   `yaml:"name"`     // connection name shown by the server
+	// Settings are the connection keys shared with the NATS sink (urls,
+	// name, user, password, token, nkey_seed_file, credentials_file, tls,
+	// reconnect_wait, reconnect_buffer_bytes; see config/natsconn). Here
+	// reconnect_wait defaults to 1 s and reconnect_buffer_bytes to
+	// max(1 MiB, 128 B * MaxAckPending).
+	natsconn.Settings `yaml:",inline"`
+
 	Subjects []string `yaml:"subjects"` // e.g. plant.unit1.>, plant.*.turbine
 	// Format: auto (default), json or line.
 	Format string `yaml:"format"`
@@ -86,9 +88,6 @@ type Config struct {
 	// 100 ms). AckWait must exceed window + tick + AckFlush.
 	AckFlush time.Duration `yaml:"ack_flush"`
 
-	ReconnectWait time.Duration `yaml:"reconnect_wait"` // default 1 s
-	// ReconnectBufferBytes: default max(1 MiB, 128 B * MaxAckPending).
-	ReconnectBufferBytes int `yaml:"reconnect_buffer_bytes"`
 	// BatchSamples: samples gathered from several messages into one decode
 	// job and queue entry (default 1024; a job also ends at BatchSamples
 	// messages, and the sample count is estimated from the payload bytes
@@ -99,22 +98,11 @@ type Config struct {
 	// Core subscription pending limits (slow-consumer protection).
 	PendingMsgs  int `yaml:"pending_msgs"`  // default 65536
 	PendingBytes int `yaml:"pending_bytes"` // default 64 MiB
-
-	TLS             *TLSConfig `yaml:"tls"`
-	User            string     `yaml:"user"`
-	Password        string     `yaml:"password"`
-	Token           string     `yaml:"token"`
-	NKeySeedFile    string     `yaml:"nkey_seed_file"`
-	CredentialsFile string     `yaml:"credentials_file"`
 }
 
-// TLSConfig names PEM files for TLS.
-type TLSConfig struct {
-	CAFile     string `yaml:"ca_file"`
-	CertFile   string `yaml:"cert_file"` // client certificate (mutual TLS)
-	KeyFile    string `yaml:"key_file"`
-	ServerName string `yaml:"server_name"`
-}
+// TLSConfig names PEM files for TLS (ca_file, cert_file, key_file,
+// server_name).
+type TLSConfig = natsconn.TLSConfig
 
 // Errors callers branch on.
 var (
@@ -177,8 +165,8 @@ func (c *Config) defaults() error {
 	if c.PendingBytes == 0 {
 		c.PendingBytes = 64 << 20
 	}
-	if c.Token != "" && c.User != "" {
-		return fmt.Errorf("%w: token and user are exclusive", ErrConfig)
+	if err := c.Settings.Validate(); err != nil {
+		return fmt.Errorf("%w: %w", ErrConfig, err)
 	}
 	if _, err := payload.ParseFormat(c.Format); err != nil {
 		return fmt.Errorf("%w: %v", ErrConfig, err)
@@ -228,13 +216,13 @@ func (s *Source) Connected() <-chan struct{} { return s.connected }
 // Options returns the nats.go options built from the configuration (also
 // used by tests and the bare benchmark subscriber).
 func (s *Source) Options() ([]nats.Option, error) {
-	c := s.cfg
-	opts := []nats.Option{
-		nats.Name(c.Name),
+	conn, err := s.cfg.Settings.Options()
+	if err != nil {
+		return nil, fmt.Errorf("%w: %w", ErrConfig, err)
+	}
+	opts := append(conn,
 		nats.MaxReconnects(-1),
 		nats.RetryOnFailedConnect(true),
-		nats.ReconnectWait(c.ReconnectWait),
-		nats.ReconnectBufSize(c.ReconnectBufferBytes),
 		nats.DisconnectErrHandler(func(_ *nats.Conn, err error) {
 			s.mu.Lock()
 			if s.downSince.IsZero() {
@@ -273,48 +261,7 @@ func (s *Source) Options() ([]nats.Option, error) {
 			}
 			s.limiter.Warn(s.clock.Now(), "async:"+subj, "nats async error", "err", err)
 		}),
-	}
-	if c.TLS != nil {
-		tc := &tls.Config{ServerName: c.TLS.ServerName, MinVersion: tls.VersionTLS12}
-		if c.TLS.CAFile != "" {
-			pem, err := os.ReadFile(c.TLS.CAFile)
-			if err != nil {
-				return nil, fmt.Errorf("%w: tls ca_file: %v", ErrConfig, err)
-			}
-			pool := x509.NewCertPool()
-			if !pool.AppendCertsFromPEM(pem) {
-				return nil, fmt.Errorf("%w: tls ca_file %s holds no certificate", ErrConfig, c.TLS.CAFile)
-			}
-			tc.RootCAs = pool
-		}
-		if c.TLS.CertFile != "" || c.TLS.KeyFile != "" {
-			cert, err := tls.LoadX509KeyPair(c.TLS.CertFile, c.TLS.KeyFile)
-			if err != nil {
-				return nil, fmt.Errorf("%w: tls client certificate: %v", ErrConfig, err)
-			}
-			tc.Certificates = []tls.Certificate{cert}
-		}
-		opts = append(opts, nats.Secure(tc))
-	}
-	if c.User != "" {
-		opts = append(opts, nats.UserInfo(c.User, c.Password))
-	}
-	if c.Token != "" {
-		opts = append(opts, nats.Token(c.Token))
-	}
-	if c.NKeySeedFile != "" {
-		o, err := nats.NkeyOptionFromSeed(c.NKeySeedFile)
-		if err != nil {
-			return nil, fmt.Errorf("%w: nkey seed: %v", ErrConfig, err)
-		}
-		opts = append(opts, o)
-	}
-	if c.CredentialsFile != "" {
-		if _, err := os.Stat(c.CredentialsFile); err != nil {
-			return nil, fmt.Errorf("%w: credentials file: %v", ErrConfig, err)
-		}
-		opts = append(opts, nats.UserCredentials(c.CredentialsFile))
-	}
+	)
 	return opts, nil
 }
 
@@ -329,7 +276,7 @@ func (s *Source) Run(ctx context.Context) error {
 	closed := make(chan struct{})
 	var once sync.Once
 	opts = append(opts, nats.ClosedHandler(func(*nats.Conn) { once.Do(func() { close(closed) }) }))
-	nc, err := nats.Connect(strings.Join(s.cfg.URLs, ","), opts...)
+	nc, err := nats.Connect(s.cfg.URL(), opts...)
 	if err != nil {
 		return fmt.Errorf("nats connect: %w", err)
 	}

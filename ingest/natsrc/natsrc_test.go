@@ -12,6 +12,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/exergywatch/exergywatch/config/natsconn"
 	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/ingest/align"
 	"github.com/exergywatch/exergywatch/ingest/tagmap"
@@ -118,7 +119,7 @@ func TestCoreWildcardsFormatsAndRestart(t *testing.T) {
 	ns := startNATS(t, baseOpts(t, false))
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(1024, met)
-	src, err := New(Config{URLs: []string{ns.url()}, Subjects: []string{"plant.*.json", "plant.lp.>"}, ReconnectWait: 20 * time.Millisecond},
+	src, err := New(Config{Settings: natsconn.Settings{URLs: []string{ns.url()}, ReconnectWait: 20 * time.Millisecond}, Subjects: []string{"plant.*.json", "plant.lp.>"}},
 		q, met, quietLog(), nil)
 	if err != nil {
 		t.Fatal(err)
@@ -208,8 +209,8 @@ func noLoss(t *testing.T, policy string) {
 	publish(0)
 	met := &ingest.Metrics{}
 	q := ingest.NewQueue(16, met)
-	src, err := New(Config{URLs: []string{ns.url()}, Subjects: []string{"plant.>"}, Mode: ModeJetStream, Stream: "PLANT", Durable: "exergywatch",
-		AckWait: 2 * time.Second, FetchBatch: 32, ReconnectWait: 20 * time.Millisecond, AckPolicy: policy, AckFlush: 20 * time.Millisecond,
+	src, err := New(Config{Settings: natsconn.Settings{URLs: []string{ns.url()}, ReconnectWait: 20 * time.Millisecond}, Subjects: []string{"plant.>"}, Mode: ModeJetStream, Stream: "PLANT", Durable: "exergywatch",
+		AckWait: 2 * time.Second, FetchBatch: 32, AckPolicy: policy, AckFlush: 20 * time.Millisecond,
 		BatchSamples: 6}, q, met, quietLog(), nil)
 	if err != nil {
 		t.Fatal(err)
@@ -269,7 +270,7 @@ func TestJetStreamAckAfterSnapshotRelease(t *testing.T) {
 		t.Fatal(err)
 	}
 	q := ingest.NewQueue(4, met)
-	src, err := New(Config{URLs: []string{ns.url()}, Subjects: []string{"t.>"}, Mode: ModeJetStream, Stream: "S", Durable: "d"}, q, met, quietLog(), nil)
+	src, err := New(Config{Settings: natsconn.Settings{URLs: []string{ns.url()}}, Subjects: []string{"t.>"}, Mode: ModeJetStream, Stream: "S", Durable: "d"}, q, met, quietLog(), nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -379,7 +380,7 @@ func TestAuthentication(t *testing.T) {
 			o := baseOpts(t, false)
 			tc.opts(o)
 			ns := startNATS(t, o)
-			cfg := Config{URLs: []string{ns.url()}, Subjects: []string{"auth.>"}, ReconnectWait: 20 * time.Millisecond}
+			cfg := Config{Settings: natsconn.Settings{URLs: []string{ns.url()}, ReconnectWait: 20 * time.Millisecond}, Subjects: []string{"auth.>"}}
 			tc.cfg(&cfg)
 			met := &ingest.Metrics{}
 			q := ingest.NewQueue(16, met)

@@ -11,6 +11,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/exergywatch/exergywatch/config/natsconn"
 	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/ingest/align"
 	"github.com/exergywatch/exergywatch/ingest/natsrc"
@@ -58,7 +59,7 @@ func TestBothSourcesFeedOneSnapshot(t *testing.T) {
 	uaSrv := uatest.Start(t, "SPEED")
 
 	cfg := Config{
-		NATS: []natsrc.Config{{URLs: []string{url}, Subjects: []string{"plant.>"}, Mode: natsrc.ModeJetStream, Stream: "PLANT", Durable: "ew",
+		NATS: []natsrc.Config{{Settings: natsconn.Settings{URLs: []string{url}}, Subjects: []string{"plant.>"}, Mode: natsrc.ModeJetStream, Stream: "PLANT", Durable: "ew",
 			AckWait: 5 * time.Second, AckFlush: 10 * time.Millisecond}},
 		OPCUA: []opcuasrc.Config{{Endpoint: uaSrv.Endpoint(), PublishingInterval: 50 * time.Millisecond,
 			Items: []opcuasrc.ItemConfig{{NodeID: uaSrv.NodeID("SPEED"), Tag: "P1.SPEED"}}}},
@@ -149,7 +150,7 @@ func TestConfigErrors(t *testing.T) {
 	good := tagmap.Config{Tags: []tagmap.TagConfig{{Tag: "a", Machine: "m", Port: "inlet", Quantity: "p"}}}
 	for name, cfg := range map[string]Config{
 		"no source": {Tags: good},
-		"ack wait too short": {Tags: good, Tick: 10 * time.Second, NATS: []natsrc.Config{{URLs: []string{"nats://x"}, Subjects: []string{"a"},
+		"ack wait too short": {Tags: good, Tick: 10 * time.Second, NATS: []natsrc.Config{{Settings: natsconn.Settings{URLs: []string{"nats://x"}}, Subjects: []string{"a"},
 			Mode: natsrc.ModeJetStream, Stream: "S", Durable: "d", AckWait: 15 * time.Second}}},
 	} {
 		if _, err := New(cfg, nil, nil); !errors.Is(err, ErrConfig) {
