@@ -13,7 +13,8 @@
 //	reconnect_wait: 1s
 //	reconnect_buffer_bytes: 8388608
 //
-// Keys and meaning are those of natsrc.Config's connection fields. Password
+// The NATS source (natsrc.Config) and sink (natsout.Config) embed Settings
+// inline, so their keys and checks are the same by construction. Password
 // and Token hold the secret itself once the configuration's secret
 // references were resolved (config.ResolveSecrets); in the file they are
 // written as "env:NAME" or "file:/path", and literal values are refused by
