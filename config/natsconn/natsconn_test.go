@@ -17,7 +17,6 @@ import (
 	"github.com/exergywatch/exergywatch/config/tlsconf"
 )
 
-
 func TestDecodeYAML(t *testing.T) {
 	doc := "urls: [tls://a:4222, tls://b:4222]\nname: exw\nuser: u\npassword: p\nreconnect_wait: 250ms\nreconnect_buffer_bytes: 65536\ntls: {ca_file: /ca.pem, server_name: nats.example}\n"
 	var s Settings
