@@ -31,68 +31,84 @@ type Params struct {
 }
 
 // Checker holds the state of one tag. Not safe for concurrent use.
+//
+// Times are held as Unix nanoseconds (the engine's clock is bounded to
+// 2000..2262), the Hampel ring and its sorted copy share one buffer, and
+// the per-sample state sits next to the parameters: a check touches few
+// cache lines.
 type Checker struct {
 	P Params
 
-	hist    []float64 // ring of recent values for the Hampel filter
-	histPos int
-	histN   int
-	sorted  []float64 // the same values, sorted
-
-	hasLast  bool
-	lastT    time.Time // newest sample time (any quality)
-	lastUseT time.Time // newest used sample
+	lastT    int64 // newest sample time (any quality), Unix ns
+	lastUseT int64 // newest used sample, Unix ns
 	lastUseV float64
-	hasUse   bool
 
 	stuckRef   float64
-	stuckSince time.Time
-	hasStuck   bool
+	stuckSince int64 // Unix ns
+
+	histPos  int32
+	histN    int32
+	hasLast  bool
+	hasUse   bool
+	hasStuck bool
+
+	// buf[:SpikeWindow] is the ring of recent values for the Hampel
+	// filter, buf[SpikeWindow:SpikeWindow+histN] the same values sorted.
+	buf []float64
 }
 
 // New returns a checker with parameters p.
 func New(p Params) *Checker {
+	c := &Checker{}
+	c.Init(p)
+	return c
+}
+
+// Init sets up c (a zero or used Checker) with parameters p, as New does,
+// for checkers held by value.
+func (c *Checker) Init(p Params) {
 	if p.SpikeK == 0 {
 		p.SpikeK = 3
 	}
-	c := &Checker{P: p}
+	*c = Checker{P: p}
 	if p.SpikeWindow >= 3 {
-		// One allocation for both, next to each other in memory.
-		buf := make([]float64, 2*p.SpikeWindow)
-		c.hist = buf[:p.SpikeWindow:p.SpikeWindow]
-		c.sorted = buf[p.SpikeWindow : p.SpikeWindow : 2*p.SpikeWindow]
+		c.buf = make([]float64, 2*p.SpikeWindow)
 	}
-	return c
 }
 
 // Check judges one sample (value v in SI at time t, source quality q).
 // inOrder is false for a sample older than the tag's newest one; then the
 // time-dependent checks (rate, stuck) are skipped and the state is not
 // advanced. use reports whether the value may enter a time-weighted average.
+// t must lie within the range of Unix nanoseconds (years 1678..2262).
 func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) (use bool, rs ingest.Reasons) {
+	return c.CheckNs(t.UnixNano(), v, q, inOrder)
+}
+
+// CheckNs is Check with the sample time in Unix nanoseconds.
+func (c *Checker) CheckNs(t int64, v float64, q ingest.Quality, inOrder bool) (use bool, rs ingest.Reasons) {
 	use = true
 	switch q {
+	case ingest.Good:
 	case ingest.Bad:
-		rs = rs.Add(ingest.ReasonStatusBad)
-		use = false
+		if inOrder {
+			c.lastT, c.hasLast = t, true
+		}
+		return false, rs.Add(ingest.ReasonStatusBad)
 	case ingest.Uncertain:
 		rs = rs.Add(ingest.ReasonStatusUncertain)
 		if c.P.RejectUncertain {
 			use = false
 		}
 	}
-	if q == ingest.Bad {
-		if inOrder {
-			c.lastT, c.hasLast = t, true
-		}
-		return use, rs
-	}
-	if (c.P.Min != 0 || c.P.Max != 0) && (v < c.P.Min || v > c.P.Max) {
+	inRange := !((c.P.Min != 0 || c.P.Max != 0) && (v < c.P.Min || v > c.P.Max))
+	if !inRange {
 		rs = rs.Add(ingest.ReasonOutOfRange)
 		use = false
 	}
-	if use && c.hist != nil && c.histN >= 3 {
-		med, mad := c.medianMAD()
+	w := int32(len(c.buf) / 2)
+	if use && w != 0 && c.histN >= 3 {
+		med, mad := medianMAD(c.buf[w : w+c.histN])
 		thr := c.P.SpikeK * HampelScale * mad
 		if thr < c.P.SpikeFloor {
 			thr = c.P.SpikeFloor
@@ -103,22 +119,22 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 		}
 	}
 	if inOrder && use && c.P.MaxRate > 0 && c.hasUse {
-		if dt := t.Sub(c.lastUseT).Seconds(); dt > 0 && math.Abs(v-c.lastUseV)/dt > c.P.MaxRate {
+		if d := time.Duration(t - c.lastUseT); d > 0 && math.Abs(v-c.lastUseV)/d.Seconds() > c.P.MaxRate {
 			rs = rs.Add(ingest.ReasonRateOfChange)
 			use = false
 		}
 	}
 	// The Hampel history takes every in-range value, also spikes, so that a
 	// genuine step becomes the new median after half a window.
-	if c.hist != nil && !rs.Has(ingest.ReasonOutOfRange) {
-		if c.histN == len(c.hist) {
-			c.sorted = replaceSorted(c.sorted, c.hist[c.histPos], v)
+	if w != 0 && inRange && v == v { // NaN never enters the window
+		if c.histN == w {
+			replaceSorted(c.buf[w:2*w], c.buf[c.histPos], v)
 		} else {
+			insertSorted(c.buf[w:w+c.histN+1], v)
 			c.histN++
-			c.sorted = insertSorted(c.sorted, v)
 		}
-		c.hist[c.histPos] = v
-		if c.histPos++; c.histPos == len(c.hist) {
+		c.buf[c.histPos] = v
+		if c.histPos++; c.histPos == w {
 			c.histPos = 0
 		}
 	}
@@ -131,7 +147,7 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 		if c.P.StuckPeriod > 0 {
 			if !c.hasStuck || math.Abs(v-c.stuckRef) > c.P.StuckTolerance {
 				c.stuckRef, c.stuckSince, c.hasStuck = v, t, true
-			} else if t.Sub(c.stuckSince) >= c.P.StuckPeriod {
+			} else if time.Duration(t-c.stuckSince) >= c.P.StuckPeriod {
 				rs = rs.Add(ingest.ReasonStuck)
 			}
 		}
@@ -142,8 +158,7 @@ func (c *Checker) Check(t time.Time, v float64, q ingest.Quality, inOrder bool) 
 // medianMAD returns the median of the window and the median absolute
 // deviation from it, in O(n) from the sorted window: the deviations left
 // and right of the median are each sorted, so a merge finds their median.
-func (c *Checker) medianMAD() (float64, float64) {
-	s := c.sorted
+func medianMAD(s []float64) (float64, float64) {
 	n := len(s)
 	med := s[n/2]
 	if n%2 == 0 {
@@ -182,23 +197,23 @@ func searchSorted(s []float64, v float64) int {
 	return k
 }
 
-func insertSorted(s []float64, v float64) []float64 {
-	k := searchSorted(s, v)
-	s = append(s, 0)
-	copy(s[k+1:], s[k:])
+// insertSorted puts v into s[:len(s)-1] (sorted), which grows by its last
+// element.
+func insertSorted(s []float64, v float64) {
+	n := len(s) - 1
+	k := searchSorted(s[:n], v)
+	copy(s[k+1:], s[k:n])
 	s[k] = v
-	return s
 }
 
-// replaceSorted is removeSorted(s, old) then insertSorted(.., v) in one
+// replaceSorted replaces the value old held in the sorted s by v, in one
 // pass: the values between the old and the new place move by one.
-func replaceSorted(s []float64, old, v float64) []float64 {
-	if old != old || v != v { // NaN: the general path
-		return insertSorted(removeSorted(s, old), v)
-	}
+func replaceSorted(s []float64, old, v float64) {
 	k := searchSorted(s, old)
 	if k == len(s) || s[k] != old {
-		return insertSorted(s, v) // old not held: as removeSorted would
+		// old not held (cannot happen: the ring and s hold the same
+		// values, and no NaN enters): s keeps its values.
+		return
 	}
 	switch {
 	case v > old:
@@ -213,16 +228,6 @@ func replaceSorted(s []float64, old, v float64) []float64 {
 		}
 	}
 	s[k] = v
-	return s
-}
-
-func removeSorted(s []float64, v float64) []float64 {
-	k := searchSorted(s, v)
-	if k < len(s) && s[k] == v {
-		copy(s[k:], s[k+1:])
-		s = s[:len(s)-1]
-	}
-	return s
 }
 
 // AtEvaluation returns the reasons that hold at evaluation time now: stale
@@ -231,14 +236,20 @@ func removeSorted(s []float64, v float64) []float64 {
 // report-by-exception tags that stopped reporting a frozen value).
 func (c *Checker) AtEvaluation(now time.Time) ingest.Reasons {
 	var rs ingest.Reasons
-	if c.P.StaleAfter > 0 && (!c.hasLast || now.Sub(c.lastT) > c.P.StaleAfter) {
+	ns := now.UnixNano()
+	if c.P.StaleAfter > 0 && (!c.hasLast || time.Duration(ns-c.lastT) > c.P.StaleAfter) {
 		rs = rs.Add(ingest.ReasonStale)
 	}
-	if c.P.StuckPeriod > 0 && c.hasStuck && now.Sub(c.stuckSince) >= c.P.StuckPeriod {
+	if c.P.StuckPeriod > 0 && c.hasStuck && time.Duration(ns-c.stuckSince) >= c.P.StuckPeriod {
 		rs = rs.Add(ingest.ReasonStuck)
 	}
 	return rs
 }
 
-// Last returns the time of the newest in-order sample.
-func (c *Checker) Last() (time.Time, bool) { return c.lastT, c.hasLast }
+// Last returns the time of the newest in-order sample (UTC).
+func (c *Checker) Last() (time.Time, bool) {
+	if !c.hasLast {
+		return time.Time{}, false
+	}
+	return time.Unix(0, c.lastT).UTC(), true
+}
