@@ -137,10 +137,22 @@ type point struct {
 	rs  ingest.Reasons
 }
 
+// track is the per-signal state of the engine, in the order a sample
+// uses it: one sample touches few cache lines of it.
+// track is the per-signal state of the engine, in the order a sample
+// uses it: one sample touches few cache lines of it.
+// mappedSample is a sample of a batch that passed the tag map: its index
+// in the batch, signal, time (Unix ns) and SI value.
+type mappedSample struct {
+	i, sig int32
+	t      int64
+	si     float64
+}
+
 type track struct {
-	sig *tagmap.Signal
-	chk quality.Checker // by value: one pointer less to follow per sample
 	pts []point
+	mc  *machine        // machine of the signal, nil for site tags
+	chk quality.Checker // by value: one pointer less to follow per sample
 }
 
 type machine struct {
@@ -165,7 +177,6 @@ type Engine struct {
 	tracks   []track
 	machines []*machine
 	byName   map[string]*machine
-	sigMach  []*machine // machine of each signal (by Signal.Index), nil for site tags
 
 	vals, members []Value // scratch of Evaluate (under mu)
 	mapPath       bool    // tests: build every snapshot through its map
@@ -192,8 +203,9 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 		}
 		return mc
 	}
+	e.tracks = make([]track, len(m.Signals))
 	for _, s := range m.Signals {
-		e.tracks = append(e.tracks, track{sig: s, chk: *quality.New(s.Params)})
+		e.tracks[s.Index].chk.Init(s.Params)
 		if s.Machine != "" && s.Group < 0 {
 			mc := get(s.Machine)
 			mc.tracks = append(mc.tracks, s.Index)
@@ -210,7 +222,7 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 		seen := map[tagmap.Key]bool{}
 		mc.uniqueKeys = true
 		for _, idx := range mc.tracks {
-			mc.keys = append(mc.keys, e.tracks[idx].sig.Key)
+			mc.keys = append(mc.keys, m.Signals[idx].Key)
 		}
 		for _, gi := range mc.groups {
 			mc.keys = append(mc.keys, m.Groups[gi].Key)
@@ -222,10 +234,9 @@ func New(cfg Config, m *tagmap.Mapper, metrics *ingest.Metrics, log *slog.Logger
 			seen[k] = true
 		}
 	}
-	e.sigMach = make([]*machine, len(m.Signals))
 	for _, s := range m.Signals {
 		if s.Machine != "" {
-			e.sigMach[s.Index] = e.byName[s.Machine]
+			e.tracks[s.Index].mc = e.byName[s.Machine]
 		}
 	}
 	return e, nil
@@ -299,16 +310,16 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 					continue
 				}
 				// Same time, new value: a correction replaces the point.
-				use, rs := tr.chk.Check(st, si, s.Quality, false)
+				use, rs := tr.chk.CheckNs(t, si, s.Quality, false)
 				tr.pts[pos] = point{t: t, v: si, use: use, rs: rs}
 				e.countReasons(rs)
-				e.keep(sig, s)
+				keep(tr.mc, s)
 				accepted++
 				continue
 			}
 			e.metrics.Count(ingest.ReasonOutOfOrder, 1)
 		}
-		use, rs := tr.chk.Check(st, si, s.Quality, inOrder)
+		use, rs := tr.chk.CheckNs(t, si, s.Quality, inOrder)
 		if s.HasStatus && s.StatusCode == StatusBadNoCommunication {
 			rs = rs.Add(ingest.ReasonGap)
 		}
@@ -324,7 +335,7 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 			copy(tr.pts[pos+1:], tr.pts[pos:])
 			tr.pts[pos] = p
 		}
-		e.keep(sig, s)
+		keep(tr.mc, s)
 		accepted++
 	}
 	if e.metrics != nil {
@@ -332,11 +343,12 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 	}
 }
 
-func (e *Engine) keep(sig *tagmap.Signal, s *ingest.Sample) {
+// keep holds the acknowledgement of a sample taken into a window of mc
+// (nil: a site tag, acknowledged at once).
+func keep(mc *machine, s *ingest.Sample) {
 	if s.Ack == nil {
 		return
 	}
-	mc := e.sigMach[sig.Index]
 	if mc == nil {
 		s.Ack.Done()
 		return
@@ -456,7 +468,7 @@ func (e *Engine) snapshotMap(mc *machine, start, now time.Time) *Snapshot {
 	snap := &Snapshot{Machine: mc.name, At: now, From: start, Values: map[tagmap.Key]Value{}}
 	for _, idx := range mc.tracks {
 		v := e.value(idx, start, now)
-		snap.Values[e.tracks[idx].sig.Key] = v
+		snap.Values[e.mapper.Signals[idx].Key] = v
 	}
 	for _, gi := range mc.groups {
 		g := e.mapper.Groups[gi]
@@ -501,7 +513,7 @@ var doubtful = ingest.Reasons(0).Add(ingest.ReasonStatusUncertain).Add(ingest.Re
 
 func (e *Engine) value(idx int, start, end time.Time) Value {
 	tr := &e.tracks[idx]
-	sig := tr.sig
+	sig := e.mapper.Signals[idx]
 	v := Value{Unit: sig.Quantity.Kind.SIUnit(), Tag: sig.Tag}
 	s, en := start.UnixNano(), end.UnixNano()
 	hold := int64(math.MaxInt64)
