@@ -285,7 +285,7 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 			continue
 		}
 		t := st.UnixNano()
-		sig, si, r := e.mapper.Map(s)
+		idx, si, r := e.mapper.MapIndex(s)
 		if r != ingest.ReasonNone {
 			e.drop(s, r)
 			continue
@@ -298,7 +298,7 @@ func (e *Engine) Ingest(batch []ingest.Sample, now time.Time) {
 			e.drop(s, ingest.ReasonLate)
 			continue
 		}
-		tr := &e.tracks[sig.Index]
+		tr := &e.tracks[idx]
 		n := len(tr.pts)
 		inOrder := n == 0 || t > tr.pts[n-1].t
 		pos := n

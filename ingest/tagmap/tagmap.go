@@ -212,6 +212,13 @@ type tagCacheSlot struct {
 	p   *byte
 	n   int
 	sig *Signal // nil: the tag is not mapped
+	// For MapIndex without reading the Signal: its index, and for a plain
+	// signal (no scaling, not gauge, not a barometer) the conversion
+	// si = v*mul + add of its unit (units.Unit.ToSI).
+	idx      int32
+	plain    bool
+	mul, add float64
+	_        [16]byte // one slot per 64-byte cache line
 }
 
 // lookup is byTag[tag] through the cache.
@@ -231,6 +238,11 @@ func (m *Mapper) lookup(tag string) (*Signal, bool) {
 	}
 	sig, ok := m.byTag[tag]
 	*slot = tagCacheSlot{p: p, n: len(tag), sig: sig}
+	if sig != nil {
+		slot.idx = int32(sig.Index)
+		slot.plain = sig.scale == nil && !sig.Unit.Gauge && !sig.isBaro
+		slot.mul, slot.add = sig.Unit.Scale, sig.Unit.Offset
+	}
 	return sig, ok
 }
 
@@ -500,6 +512,26 @@ func (m *Mapper) Map(s *ingest.Sample) (*Signal, float64, ingest.Reason) {
 		sig.lastBaroPa, sig.hasBaro = si, true
 	}
 	return sig, si, ingest.ReasonNone
+}
+
+// MapIndex is Map returning the signal's index (Signal.Index; -1 when
+// unmapped) instead of the signal. For a plain signal (no scaling, not a
+// gauge, not a barometer) whose tag string hits the lookup cache it reads
+// only the cache slot, not the Signal: the align engine's per-sample path.
+// The Signals must not be changed after Compile.
+func (m *Mapper) MapIndex(s *ingest.Sample) (int, float64, ingest.Reason) {
+	if tag := s.Tag; tag != "" && m.cache != nil {
+		p := unsafe.StringData(tag)
+		slot := &m.cache[(uint64(uintptr(unsafe.Pointer(p)))*0x9E3779B97F4A7C15)>>(64-tagCacheBits)]
+		if slot.p == p && slot.n == len(tag) && slot.plain {
+			return int(slot.idx), s.Value*slot.mul + slot.add, ingest.ReasonNone
+		}
+	}
+	sig, si, r := m.Map(s)
+	if sig == nil {
+		return -1, si, r
+	}
+	return sig.Index, si, r
 }
 
 // Tags returns the mapped tag names in configuration order.
