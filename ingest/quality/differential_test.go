@@ -145,3 +145,67 @@ func FuzzCheckerMatchesPrevious(f *testing.F) {
 		sameVerdicts(t, p, steps)
 	})
 }
+
+// TestMedianMADMatchesMerge: the branch-free MAD equals the merge of the
+// previous implementation (the median bit for bit, the MAD as a number:
+// +0 and -0 may differ, which no threshold test can tell apart), on
+// sorted windows of 1..40 values with many ties, negative values and zero
+// spread.
+func TestMedianMADMatchesMerge(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	for k := 0; k < 20000; k++ {
+		n := 1 + r.IntN(40)
+		s := make([]float64, n)
+		scale := []float64{0, 0.5, 1, 1e-9, 1e9}[r.IntN(5)]
+		for i := range s {
+			s[i] = float64(r.IntN(9)-4)*scale + 3
+			if r.IntN(3) == 0 {
+				s[i] = r.NormFloat64() * scale
+			}
+		}
+		sortFloats(s)
+		o := &oldChecker{sorted: s}
+		wm, wd := o.oldMedianMAD()
+		gm, gd := medianMAD(s)
+		if math.Float64bits(gm) != math.Float64bits(wm) || gd != wd || math.Float64bits(madMerge(s, gm)) != math.Float64bits(wd) {
+			t.Fatalf("%v: got %v %v, want %v %v", s, gm, gd, wm, wd)
+		}
+	}
+}
+
+func sortFloats(s []float64) {
+	for i := 1; i < len(s); i++ {
+		for j := i; j > 0 && s[j] < s[j-1]; j-- {
+			s[j], s[j-1] = s[j-1], s[j]
+		}
+	}
+}
+
+// TestRateExceededMatchesQuotient: the multiplied comparison decides like
+// the quotient dv/d.Seconds() > maxRate, also at the limit itself and one
+// unit in the last place either side, for durations from 1 ns to years.
+func TestRateExceededMatchesQuotient(t *testing.T) {
+	r := rand.New(rand.NewPCG(8, 9))
+	for k := 0; k < 200000; k++ {
+		d := time.Duration(r.Int64N(int64(1) << uint(1+r.IntN(62))))
+		if d <= 0 {
+			d = 1
+		}
+		maxRate := math.Exp(r.NormFloat64() * 10)
+		dv := maxRate * d.Seconds()
+		switch r.IntN(4) {
+		case 0:
+			dv = math.Nextafter(dv, math.Inf(1))
+		case 1:
+			dv = math.Nextafter(dv, 0)
+		case 2:
+			dv *= math.Exp(r.NormFloat64())
+		}
+		if r.IntN(50) == 0 {
+			dv = []float64{0, math.Inf(1), math.NaN()}[r.IntN(3)]
+		}
+		if got, want := rateExceeded(dv, d, maxRate), dv/d.Seconds() > maxRate; got != want {
+			t.Fatalf("dv %v d %v maxRate %v: got %v want %v", dv, d, maxRate, got, want)
+		}
+	}
+}

@@ -119,7 +119,7 @@ func (c *Checker) CheckNs(t int64, v float64, q ingest.Quality, inOrder bool) (u
 		}
 	}
 	if inOrder && use && c.P.MaxRate > 0 && c.hasUse {
-		if d := time.Duration(t - c.lastUseT); d > 0 && math.Abs(v-c.lastUseV)/d.Seconds() > c.P.MaxRate {
+		if d := time.Duration(t - c.lastUseT); d > 0 && rateExceeded(math.Abs(v-c.lastUseV), d, c.P.MaxRate) {
 			rs = rs.Add(ingest.ReasonRateOfChange)
 			use = false
 		}
@@ -155,17 +155,74 @@ func (c *Checker) CheckNs(t int64, v float64, q ingest.Quality, inOrder bool) (u
 	return use, rs
 }
 
-// medianMAD returns the median of the window and the median absolute
-// deviation from it, in O(n) from the sorted window: the deviations left
-// and right of the median are each sorted, so a merge finds their median.
+// rateExceeded is dv/d.Seconds() > maxRate (dv >= 0 or NaN, d > 0,
+// maxRate > 0) without the integer division of Seconds and the float
+// division: dv is compared with maxRate·d·1e-9, whose relative error
+// against maxRate·d.Seconds() is a few units of 2⁻⁵³; only within a
+// relative 1e-9 of the limit (or for NaN) the exact quotient decides.
+func rateExceeded(dv float64, d time.Duration, maxRate float64) bool {
+	lim := maxRate * float64(d) * 1e-9
+	switch {
+	case dv > lim*(1+1e-9):
+		return true
+	case dv < lim*(1-1e-9):
+		return false
+	}
+	return dv/d.Seconds() > maxRate
+}
+
+// medianMAD returns the median of the sorted window s and the median
+// absolute deviation from it, in O(n) without branches on the data.
+//
+// The k smallest deviations |s[i]-med| are a run of k neighbours in s
+// (they grow away from the median on both sides), and the largest
+// deviation of a run is at one of its ends, so the k-th smallest deviation
+// is the least, over the runs s[i..i+k-1], of the larger end deviation.
+// Each candidate is one of the deviations themselves, so the result is the
+// same number as a sort of the deviations gives (tested against the
+// previous merge, madMerge, and against sorting).
 func medianMAD(s []float64) (float64, float64) {
 	n := len(s)
-	med := s[n/2]
+	h := n / 2
+	med := s[h]
 	if n%2 == 0 {
-		med = (s[n/2-1] + s[n/2]) / 2
+		med = (s[h-1] + s[h]) / 2
 	}
-	// Merge the deviations med-s[i] (i = mid-1 down to 0) and s[j]-med
-	// (j = mid up to n-1), both increasing, up to the middle element(s).
+	if med-med != 0 { // ±Inf (NaN never enters): the merge copes
+		return med, madMerge(s, med)
+	}
+	if n%2 == 1 {
+		return med, kthDeviation(s, med, h+1)
+	}
+	return med, (kthDeviation(s, med, h) + kthDeviation(s, med, h+1)) / 2
+}
+
+// kthDeviation is the k-th smallest |s[i]-med| (1-based) of sorted s,
+// k > len(s)/2 - 1 (so that every run s[i..i+k-1] reaches the median or
+// lies on one side of it). The larger end deviation of a run is
+// max(med-s[i], s[i+k-1]-med): an end on the wrong side of the median
+// gives a value <= 0 there, the other end the true one. The deviations
+// are compared as the integers of their bits, which order like the
+// numbers for values >= 0 and put negative ones below (no NaN here; ±0
+// compare as different but only the threshold test uses the result, where
+// they are alike), so the loop has no branches and no float min/max.
+func kthDeviation(s []float64, med float64, k int) float64 {
+	lo, hi := s[:len(s)-k+1], s[k-1:]
+	hi = hi[:len(lo)]
+	d := int64(math.MaxInt64)
+	for i := range lo {
+		a := int64(math.Float64bits(med - lo[i]))
+		b := int64(math.Float64bits(hi[i] - med))
+		d = min(d, max(a, b))
+	}
+	return math.Float64frombits(uint64(d))
+}
+
+// madMerge is the median absolute deviation from med of sorted s by
+// merging the deviations left and right of the median (both sorted) up to
+// the middle element(s).
+func madMerge(s []float64, med float64) float64 {
+	n := len(s)
 	i, j := n/2-1, n/2
 	var prev, cur float64
 	for k := 0; k <= n/2; k++ {
@@ -179,9 +236,9 @@ func medianMAD(s []float64) (float64, float64) {
 		}
 	}
 	if n%2 == 1 {
-		return med, cur
+		return cur
 	}
-	return med, (prev + cur) / 2
+	return (prev + cur) / 2
 }
 
 // searchSorted is sort.SearchFloat64s (the first index with s[k] >= v) as
