@@ -139,16 +139,6 @@ type point struct {
 
 // track is the per-signal state of the engine, in the order a sample
 // uses it: one sample touches few cache lines of it.
-// track is the per-signal state of the engine, in the order a sample
-// uses it: one sample touches few cache lines of it.
-// mappedSample is a sample of a batch that passed the tag map: its index
-// in the batch, signal, time (Unix ns) and SI value.
-type mappedSample struct {
-	i, sig int32
-	t      int64
-	si     float64
-}
-
 type track struct {
 	pts []point
 	mc  *machine        // machine of the signal, nil for site tags
