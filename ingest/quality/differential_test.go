@@ -121,6 +121,28 @@ func TestCheckerMatchesPrevious(t *testing.T) {
 	for k := 0; k < 400; k++ {
 		sameVerdicts(t, randomParams(r), randomStream(r, 300))
 	}
+	// Periodic streams (the window sees the same values again and again,
+	// so the kept median and MAD are reused) broken by an occasional
+	// other value, spike or bad sample.
+	for k := 0; k < 200; k++ {
+		p := randomParams(r)
+		period := 1 + r.IntN(10)
+		if r.IntN(2) == 0 && p.SpikeWindow > 0 {
+			period = p.SpikeWindow
+		}
+		base := make([]float64, period)
+		for i := range base {
+			base[i] = 100 + float64(r.IntN(5))
+		}
+		steps := randomStream(r, 300)
+		for i := range steps {
+			if r.IntN(30) != 0 {
+				steps[i].v, steps[i].q, steps[i].inOrder = base[i%period], ingest.Good, true
+				steps[i].dt = 10 * time.Millisecond
+			}
+		}
+		sameVerdicts(t, p, steps)
+	}
 }
 
 // FuzzCheckerMatchesPrevious: the same comparison on fuzzed streams (7

@@ -51,6 +51,9 @@ type Checker struct {
 	hasLast  bool
 	hasUse   bool
 	hasStuck bool
+	statOK   bool // med and mad are those of the window as it is
+
+	med, mad float64 // median and MAD of the Hampel window when statOK
 
 	// buf[:SpikeWindow] is the ring of recent values for the Hampel
 	// filter, buf[SpikeWindow:SpikeWindow+histN] the same values sorted.
@@ -108,7 +111,11 @@ func (c *Checker) CheckNs(t int64, v float64, q ingest.Quality, inOrder bool) (u
 	}
 	w := int32(len(c.buf) / 2)
 	if use && w != 0 && c.histN >= 3 {
-		med, mad := medianMAD(c.buf[w : w+c.histN])
+		if !c.statOK {
+			c.med, c.mad = medianMAD(c.buf[w : w+c.histN])
+			c.statOK = true
+		}
+		med, mad := c.med, c.mad
 		thr := c.P.SpikeK * HampelScale * mad
 		if thr < c.P.SpikeFloor {
 			thr = c.P.SpikeFloor
@@ -128,10 +135,16 @@ func (c *Checker) CheckNs(t int64, v float64, q ingest.Quality, inOrder bool) (u
 	// genuine step becomes the new median after half a window.
 	if w != 0 && inRange && v == v { // NaN never enters the window
 		if c.histN == w {
-			replaceSorted(c.buf[w:2*w], c.buf[c.histPos], v)
+			// A value replaced by the same number (steady or quantised
+			// data) leaves the window, its median and MAD as they are.
+			if old := c.buf[c.histPos]; math.Float64bits(old) != math.Float64bits(v) {
+				replaceSorted(c.buf[w:2*w], old, v)
+				c.statOK = false
+			}
 		} else {
 			insertSorted(c.buf[w:w+c.histN+1], v)
 			c.histN++
+			c.statOK = false
 		}
 		c.buf[c.histPos] = v
 		if c.histPos++; c.histPos == w {
