@@ -1,6 +1,10 @@
 package gerg2008
 
-import "math"
+import (
+	"math"
+
+	"github.com/exergywatch/exergywatch/thermo/internal/fastmath"
+)
 
 // tauCache holds the temperature-dependent factors of the merged residual
 // terms, summed per (d, c, e) group: g0 = sum n tau^t, g1 = sum n t tau^t
@@ -24,7 +28,7 @@ func (m *Mixture) setTau(tc *tauCache, T float64) {
 		// per distinct fractional part.
 		var fr [maxFrac]float64
 		for j, f := range ts.fracs {
-			fr[j] = fexp(f * lt)
+			fr[j] = fastmath.Exp(f * lt)
 		}
 		var ip, in [maxIntPow + 1]float64 // tau^k and tau^-k
 		ip[0], in[0] = 1, 1
@@ -115,7 +119,7 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 	// Pure-fluid exponential terms: n delta^d tau^t exp(-delta^c).
 	var ec [maxC]float64
 	for _, c := range ts.cList {
-		ec[c] = fexp(-dp[c])
+		ec[c] = fastmath.Exp(-dp[c])
 	}
 	end := ts.nGPoly + ts.nGEx
 	for k := ts.nGPoly; k < end; k++ {
@@ -139,7 +143,7 @@ func (m *Mixture) residual(tc *tauCache, delta float64) (r resid) {
 	var ee, s1, s2, e2 [maxDepExp]float64
 	for k, de := range ts.depExp {
 		dm := delta - de.eps
-		ee[k] = fexp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		ee[k] = fastmath.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
 		s1[k] = -2*de.eta*delta*dm - de.beta*delta                            // delta d(exponent)/d delta
 		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta // delta d(s1)/d delta
 		e2[k] = 2 * de.eta * delta * delta
@@ -194,7 +198,7 @@ func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pd
 	}
 	var ec [maxC]float64
 	for _, c := range ts.cList {
-		ec[c] = fexp(-dp[c])
+		ec[c] = fastmath.Exp(-dp[c])
 	}
 	end := ts.nGPoly + ts.nGEx
 	for k := ts.nGPoly; k < end; k++ {
@@ -212,7 +216,7 @@ func (m *Mixture) pressure3(tc *tauCache, D float64, second bool) (p, dpdD, d2pd
 	var ee, s1, s2, e2 [maxDepExp]float64
 	for k, de := range ts.depExp {
 		dm := delta - de.eps
-		ee[k] = fexp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
+		ee[k] = fastmath.Exp(-de.eta*dm*dm - de.beta*(delta-de.gamma))
 		s1[k] = -2*de.eta*delta*dm - de.beta*delta
 		s2[k] = -4*de.eta*delta*delta + 2*de.eta*de.eps*delta - de.beta*delta
 		e2[k] = 2 * de.eta * delta * delta
@@ -249,7 +253,7 @@ func (m *Mixture) ideal(T, D float64) (a0, a0t, a0tt float64) {
 	for i := range m.hyp {
 		c := &m.hyp[i]
 		u := c.th * iT
-		em := fexp(-u)
+		em := fastmath.Exp(-u)
 		em2 := em * em
 		if !c.cosh {
 			// ln sinh u, u coth u, (u/sinh u)^2 written to stay finite for

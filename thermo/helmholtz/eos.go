@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"sort"
+
+	"github.com/exergywatch/exergywatch/thermo/internal/fastmath"
 )
 
 // Fixed capacities of the per-temperature work arrays. They live on the
@@ -298,11 +300,11 @@ func buildEOS(e *jsonEOS, dropOffset bool) (*eos, error) {
 	for k, d := range q.gDi {
 		q.maxD = max(q.maxD, d)
 		q.gSame = append(q.gSame, k > 0 && q.gEta[k] == q.gEta[k-1] && q.gEps[k] == q.gEps[k-1])
-		q.g0 = append(q.g0, fexp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
+		q.g0 = append(q.g0, fastmath.Exp(-q.gEta[k]*q.gEps[k]*q.gEps[k]))
 	}
 	for k, d := range q.aDi {
 		q.maxD = max(q.maxD, d)
-		q.a0 = append(q.a0, fexp(q.aEta[k]*q.aEps[k]*q.aEps[k]))
+		q.a0 = append(q.a0, fastmath.Exp(q.aEta[k]*q.aEps[k]*q.aEps[k]))
 	}
 	if len(q.uniq) > maxUniqT {
 		return nil, fmt.Errorf("too many distinct tau exponents")
@@ -366,7 +368,7 @@ func powi(x float64, n int) float64 {
 func tauPow(tau float64, r *[3]float64, lnTau, t float64) float64 {
 	t8 := 8 * t
 	if t8 != math.Trunc(t8) || math.Abs(t8) > 512 {
-		return fexp(t * lnTau)
+		return fastmath.Exp(t * lnTau)
 	}
 	n := int(t8)
 	neg := n < 0
@@ -429,7 +431,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 	for k, n := range q.gN {
 		t, b, g := q.gT[k], q.gBeta[k], q.gGam[k]
 		dt := tau - g
-		tp.gw[k] = n * fexp(t*lnTau-b*dt*dt)
+		tp.gw[k] = n * fastmath.Exp(t*lnTau-b*dt*dt)
 		gt := t - 2*b*tau*dt
 		tp.gt[k] = gt
 		tp.gtt[k] = gt*gt - t - 2*b*tau*tau
@@ -445,7 +447,7 @@ func (q *eos) tauPart(tau float64, tp *tauPart) {
 		t, b, g, bb := q.aT[k], q.aBeta[k], q.aGam[k], q.aB[k]
 		dt := tau - g
 		u := b*dt*dt + bb
-		tp.aw[k] = n * fexp(t*lnTau+1/u)
+		tp.aw[k] = n * fastmath.Exp(t*lnTau+1/u)
 		ht := t - 2*b*tau*dt/(u*u)
 		htp := -2 * b * ((2*tau-g)*u - 4*b*tau*dt*dt) / (u * u * u)
 		tp.at[k] = ht
@@ -480,7 +482,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		e, lx, llx, lllx := 1.0, 0.0, 0.0, 0.0
 		if gr.l > 0 {
 			x := powi(delta, gr.l) // delta^l
-			e = fexp(-x)
+			e = fastmath.Exp(-x)
 			fl := float64(gr.l)
 			lx, llx = fl*x, fl*fl*x
 			lllx = fl * llx
@@ -517,7 +519,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 		eta, eps := q.gEta[k], q.gEps[k]
 		if !q.gSame[k] {
 			de := delta - eps
-			ge = fexp(-eta * de * de)
+			ge = fastmath.Exp(-eta * de * de)
 			g2 = 2 * eta * delta * de
 		}
 		F := tp.gw[k] * dp[q.gDi[k]] * ge
@@ -537,7 +539,7 @@ func (q *eos) residual(tp *tauPart, delta float64, full bool) resid {
 	for k := range q.aN {
 		eta, eps := q.aEta[k], q.aEps[k]
 		de := delta - eps
-		F := tp.aw[k] * dp[q.aDi[k]] * fexp(eta*de*de)
+		F := tp.aw[k] * dp[q.aDi[k]] * fastmath.Exp(eta*de*de)
 		gd := q.aD[k] + 2*eta*delta*de
 		h := gd*gd - q.aD[k] + 2*eta*delta*delta
 		r.A += F
@@ -587,17 +589,17 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 		}
 		if C != pC || D != pD {
 			pC, pD = C, D
-			psi = fexp(-ex)
+			psi = fastmath.Exp(-ex)
 		}
 		if a != pa || beta != pbeta || A != pA || B != pB {
 			pa, pbeta, pA, pB = a, beta, A, B
 			qib1, qa1, qib = 0, 0, 0 // q^(1/(2beta)-1), q^(a-1), q^(1/(2beta))
 			if qq > 0 {
-				qib1 = fexp(q.nIB1[k] * lnq)
+				qib1 = fastmath.Exp(q.nIB1[k] * lnq)
 				if m := q.nA2[k]; m >= 0 {
 					qa1 = powi(math.Abs(dm), m)
 				} else {
-					qa1 = fexp((a - 1) * lnq)
+					qa1 = fastmath.Exp((a - 1) * lnq)
 				}
 				qib = qib1 * qq
 			}
@@ -612,7 +614,7 @@ func (q *eos) nonAnalytic(tau, delta float64, r *resid) {
 		var Db, Db1, Db2 float64 // Delta^b, Delta^(b-1), Delta^(b-2)
 		if Delta > 0 {
 			iD := 1 / Delta
-			Db = fexp(b * lnDelta)
+			Db = fastmath.Exp(b * lnDelta)
 			Db1 = Db * iD
 			Db2 = Db1 * iD
 		}
@@ -659,7 +661,7 @@ func (q *eos) ideal(tau float64) ideal {
 		case 1:
 			v = n * tau
 		default:
-			v = n * fexp(t*lnTau)
+			v = n * fastmath.Exp(t*lnTau)
 		}
 		o.A += v
 		o.T += t * v
@@ -667,7 +669,7 @@ func (q *eos) ideal(tau float64) ideal {
 	}
 	for k, n := range q.peN {
 		x := q.peT[k] * tau
-		e := fexp(-x) // exp(-theta tau)
+		e := fastmath.Exp(-x) // exp(-theta tau)
 		o.A += n * math.Log1p(-e)
 		em := 1 - e // exact enough unless x is small
 		if x < 0.5 {
@@ -679,7 +681,7 @@ func (q *eos) ideal(tau float64) ideal {
 	for k, n := range q.pgN {
 		x := q.pgT[k] * tau
 		c, d := q.pgC[k], q.pgD[k]
-		e := fexp(x)
+		e := fastmath.Exp(x)
 		den := c + d*e
 		o.A += n * math.Log(den)
 		o.T += n * x * d * e / den
@@ -699,7 +701,7 @@ func (q *eos) b2NonAnalytic(tau float64) float64 {
 			continue
 		}
 		th := -tm + q.nACap[k]
-		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * fexp(-ex)
+		b2 += n * math.Pow(th*th+q.nBCap[k], q.nB[k]) * fastmath.Exp(-ex)
 	}
 	return b2
 }

@@ -73,6 +73,7 @@ import (
 	"sync/atomic"
 
 	"github.com/exergywatch/exergywatch/thermo"
+	"github.com/exergywatch/exergywatch/thermo/internal/fastmath"
 )
 
 // spec says which file and equation a config name uses.
@@ -148,16 +149,16 @@ func (a *ancillary) eval(T float64) float64 {
 	if th > 0 {
 		lth := math.Log(th)
 		for i, n := range a.n {
-			s += n * fexp(a.t[i]*lth)
+			s += n * fastmath.Exp(a.t[i]*lth)
 		}
 	}
 	switch a.kind {
 	case 0:
 		return a.r * (1 + s)
 	case 1:
-		return a.r * fexp(a.tr/T*s)
+		return a.r * fastmath.Exp(a.tr/T*s)
 	default:
-		return a.r * fexp(s)
+		return a.r * fastmath.Exp(s)
 	}
 }
 

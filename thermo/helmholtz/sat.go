@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"github.com/exergywatch/exergywatch/thermo"
+	"github.com/exergywatch/exergywatch/thermo/internal/fastmath"
 )
 
 // satPoint is a vapour-liquid equilibrium state of the equation itself.
@@ -416,7 +417,7 @@ func (a *ancillary) lnEval(T float64) (v, dvdT float64) {
 	if th > 0 {
 		lth := math.Log(th)
 		for i, n := range a.n {
-			w := n * fexp(a.t[i]*lth)
+			w := n * fastmath.Exp(a.t[i]*lth)
 			s += w
 			ds += w * a.t[i]
 		}

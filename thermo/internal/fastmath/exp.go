@@ -1,4 +1,6 @@
-package helmholtz
+// Package fastmath holds the elementary functions the property models call
+// in their innermost loops (thermo/helmholtz, thermo/gerg2008).
+package fastmath
 
 import (
 	"math"
@@ -21,13 +23,13 @@ var expTab = func() (t [64]float64) {
 	return
 }()
 
-// fexp returns e^x with an error below one unit in the last place for
+// Exp returns e^x with an error below one unit in the last place for
 // |x| <= 700 (tested against math.Exp and math/big in fastexp_test.go),
 // and math.Exp(x) outside that range or for NaN. It is math.Exp without
 // the call: x = (64 m + j) ln2/64 + r with |r| <= ln2/128, e^x =
 // 2^m 2^(j/64) e^r, e^r from its degree-6 Taylor polynomial (truncation
 // below 1e-19 relative).
-func fexp(x float64) float64 {
+func Exp(x float64) float64 {
 	if !(x >= -700 && x <= 700) {
 		return math.Exp(x)
 	}

@@ -1,4 +1,4 @@
-package gerg2008
+package fastmath
 
 import (
 	"math"
@@ -7,10 +7,8 @@ import (
 	"testing"
 )
 
-// This file is a copy of thermo/helmholtz/fastexp_test.go.
-
 // bigExp is e^x to 200 bits by argument halving and the Taylor series
-// (reference for fexp; common practice, no source).
+// (reference for Exp; common practice, no source).
 func bigExp(x float64) *big.Float {
 	const prec = 200
 	// e^x = (e^(x/2^s))^(2^s)
@@ -30,7 +28,7 @@ func bigExp(x float64) *big.Float {
 	return sum
 }
 
-// TestFexp checks fexp against a 200-bit reference: within one ulp, and
+// TestFexp checks Exp against a 200-bit reference: within one ulp, and
 // never worse than math.Exp by more than one ulp.
 func TestFexp(t *testing.T) {
 	rng := rand.New(rand.NewPCG(1, 2))
@@ -46,21 +44,21 @@ func TestFexp(t *testing.T) {
 			x = (rng.Float64()*2 - 1) * 700
 		}
 		ref, _ := bigExp(x).Float64()
-		got := fexp(x)
+		got := Exp(x)
 		ulp := math.Abs(got-ref) / (math.Nextafter(ref, math.Inf(1)) - ref)
 		worst = max(worst, ulp)
 		if ulp > 1 {
-			t.Fatalf("fexp(%v) = %v, reference %v: %g ulp", x, got, ref, ulp)
+			t.Fatalf("Exp(%v) = %v, reference %v: %g ulp", x, got, ref, ulp)
 		}
 	}
 	t.Logf("worst error %g ulp", worst)
 	for _, x := range []float64{0, -0.0, 1, -1, 700, -700, 701, -746, 710, math.Inf(1), math.Inf(-1)} {
-		if got, want := fexp(x), math.Exp(x); got != want {
-			t.Errorf("fexp(%v) = %v, want %v", x, got, want)
+		if got, want := Exp(x), math.Exp(x); got != want {
+			t.Errorf("Exp(%v) = %v, want %v", x, got, want)
 		}
 	}
-	if !math.IsNaN(fexp(math.NaN())) {
-		t.Error("fexp(NaN) is not NaN")
+	if !math.IsNaN(Exp(math.NaN())) {
+		t.Error("Exp(NaN) is not NaN")
 	}
 }
 
@@ -69,7 +67,7 @@ var sinkExp float64
 func BenchmarkFexp(b *testing.B) {
 	x := 0.0
 	for i := 0; i < b.N; i++ {
-		x += fexp(-1.2345 - float64(i&7)*0.01)
+		x += Exp(-1.2345 - float64(i&7)*0.01)
 	}
 	sinkExp = x
 }
