@@ -730,37 +730,8 @@ func TestSynthPlantNoise(t *testing.T) {
 // the plant, on 1-minute snapshots of the synthetic year data; this is where
 // a replay spends its time.
 func BenchmarkEvaluateMachine(b *testing.B) {
-	start := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC)
-	const ticks = 240
-	sp := newSynthPlant(b, yearOptions(start, 1), time.Minute, ticks*time.Minute, time.Hour)
-	cfg, err := config.Load(replayConfig(b, b.TempDir(), 1, time.Minute, time.Minute))
-	if err != nil {
-		b.Fatal(err)
-	}
-	cfg.Sinks = nil
-	p, err := buildPipeline(cfg, pipelineOptions{})
-	if err != nil {
-		b.Fatal(err)
-	}
+	cfg, p, snaps := evaluationBench(b)
 	defer p.close()
-	snaps := map[string][]*align.Snapshot{}
-	var batch []ingest.Sample
-	for k := 1; k <= ticks; k++ {
-		tick := start.Add(time.Duration(k) * time.Minute)
-		batch = batch[:0]
-		for {
-			at, more := sp.nextTime()
-			if !more || at.After(tick) {
-				break
-			}
-			s, _, _ := sp.next()
-			batch = append(batch, s)
-		}
-		p.engine.Ingest(batch, tick)
-		for _, s := range p.engine.Evaluate(tick) {
-			snaps[s.Machine] = append(snaps[s.Machine], s)
-		}
-	}
 	for _, id := range p.order {
 		b.Run(id, func(b *testing.B) {
 			ss := snaps[id]
@@ -781,6 +752,45 @@ func BenchmarkEvaluateMachine(b *testing.B) {
 			}
 		})
 	}
+}
+
+// evaluationBench builds the one-plant replay pipeline (no sinks) and the
+// aligned 1-minute snapshots of each machine over 240 ticks of the
+// synthetic year data, for the per-evaluation benchmarks. The caller
+// closes the pipeline.
+func evaluationBench(b *testing.B) (*config.Config, *pipeline, map[string][]*align.Snapshot) {
+	b.Helper()
+	start := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC)
+	const ticks = 240
+	sp := newSynthPlant(b, yearOptions(start, 1), time.Minute, ticks*time.Minute, time.Hour)
+	cfg, err := config.Load(replayConfig(b, b.TempDir(), 1, time.Minute, time.Minute))
+	if err != nil {
+		b.Fatal(err)
+	}
+	cfg.Sinks = nil
+	p, err := buildPipeline(cfg, pipelineOptions{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	snaps := map[string][]*align.Snapshot{}
+	var batch []ingest.Sample
+	for k := 1; k <= ticks; k++ {
+		tick := start.Add(time.Duration(k) * time.Minute)
+		batch = batch[:0]
+		for {
+			at, more := sp.nextTime()
+			if !more || at.After(tick) {
+				break
+			}
+			s, _, _ := sp.next()
+			batch = append(batch, s)
+		}
+		p.engine.Ingest(batch, tick)
+		for _, s := range p.engine.Evaluate(tick) {
+			snaps[s.Machine] = append(snaps[s.Machine], s)
+		}
+	}
+	return cfg, p, snaps
 }
 
 func slicesIndex(cfg *config.Config, id string) int {

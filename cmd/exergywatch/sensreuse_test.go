@@ -9,8 +9,6 @@ import (
 
 	"github.com/exergywatch/exergywatch/cmd/exergywatch/internal/plantsim"
 	"github.com/exergywatch/exergywatch/compute"
-	"github.com/exergywatch/exergywatch/config"
-	"github.com/exergywatch/exergywatch/ingest"
 	"github.com/exergywatch/exergywatch/ingest/align"
 	"github.com/exergywatch/exergywatch/thermo/fluids"
 )
@@ -162,37 +160,8 @@ func TestEvaluatorStopForgetsSensitivities(t *testing.T) {
 //
 //	go test -run XXX -bench EvaluateMachineSensReuse -benchtime 2000x -count 5 ./cmd/exergywatch/
 func BenchmarkEvaluateMachineSensReuse(b *testing.B) {
-	start := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC)
-	const ticks = 240
-	sp := newSynthPlant(b, yearOptions(start, 1), time.Minute, ticks*time.Minute, time.Hour)
-	cfg, err := config.Load(replayConfig(b, b.TempDir(), 1, time.Minute, time.Minute))
-	if err != nil {
-		b.Fatal(err)
-	}
-	cfg.Sinks = nil
-	p, err := buildPipeline(cfg, pipelineOptions{})
-	if err != nil {
-		b.Fatal(err)
-	}
+	cfg, p, snaps := evaluationBench(b)
 	defer p.close()
-	snaps := map[string][]*align.Snapshot{}
-	var batch []ingest.Sample
-	for k := 1; k <= ticks; k++ {
-		tick := start.Add(time.Duration(k) * time.Minute)
-		batch = batch[:0]
-		for {
-			at, more := sp.nextTime()
-			if !more || at.After(tick) {
-				break
-			}
-			s, _, _ := sp.next()
-			batch = append(batch, s)
-		}
-		p.engine.Ingest(batch, tick)
-		for _, s := range p.engine.Evaluate(tick) {
-			snaps[s.Machine] = append(snaps[s.Machine], s)
-		}
-	}
 	keys := cfg.Keys()
 	for _, id := range p.order {
 		for _, mode := range []string{"fresh", "reuse"} {
