@@ -650,6 +650,12 @@ func TestStatusEndpoints(t *testing.T) {
 		if len(mv.Inputs) == 0 {
 			t.Errorf("machine %s: no inputs_si", mv.ID)
 		}
+		if mv.SensitivityAge == nil || *mv.SensitivityAge < 0 || *mv.SensitivityAge > 60 {
+			t.Errorf("machine %s: u95_sensitivity_age %v, want 0..60 (machine.DefaultMaxAge)", mv.ID, mv.SensitivityAge)
+		}
+	}
+	if len(s.Sources) != 1 || s.Sources[0].Kind != "nats" || s.Sources[0].Trust != nil {
+		t.Errorf("/status sources %+v, want the one NATS source", s.Sources)
 	}
 	if !slices.Equal(ids, demoMachines) {
 		t.Errorf("/status machines %v, want %v", ids, demoMachines)

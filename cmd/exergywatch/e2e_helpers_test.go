@@ -549,7 +549,8 @@ type statusDoc struct {
 			U95     *float64 `json:"u95"`
 			Quality string   `json:"quality"`
 		} `json:"figures"`
-		Inputs map[string]float64 `json:"inputs_si"`
+		Inputs         map[string]float64 `json:"inputs_si"`
+		SensitivityAge *int               `json:"u95_sensitivity_age"`
 	} `json:"machines"`
 	Alerts []struct {
 		Machine string    `json:"machine"`
@@ -560,8 +561,16 @@ type statusDoc struct {
 		Value   float64   `json:"value"`
 		Limit   float64   `json:"limit"`
 	} `json:"active_alerts"`
-	Sinks  []map[string]any `json:"sinks"`
-	Ingest map[string]any   `json:"ingest"`
+	Sinks   []map[string]any `json:"sinks"`
+	Ingest  map[string]any   `json:"ingest"`
+	Sources []struct {
+		Name  string `json:"name"`
+		Kind  string `json:"kind"`
+		Trust *struct {
+			Refusals uint64 `json:"untrusted_server_refusals"`
+		} `json:"server_certificate"`
+		LastRefusal string `json:"last_certificate_refusal"`
+	} `json:"sources"`
 }
 
 // readStore opens a store file after the daemon stopped and returns its

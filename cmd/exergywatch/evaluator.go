@@ -45,7 +45,11 @@ type evaluator struct {
 	// sens carries the uncertainty sensitivities of the machine model from
 	// tick to tick (machine.EvaluateWith); a new evaluator (start, reload)
 	// starts without, and a stop forgets them.
-	sens    machine.Sensitivities
+	sens machine.Sensitivities
+	// sensAge is the last evaluation's Result.SensitivityAge (0: fresh
+	// sensitivities; n: reused from n evaluations back), -1 when the last
+	// tick did not evaluate the model (for /status).
+	sensAge int
 	signals []string
 	rules   []*alert.Machine
 	trends  map[string]*trend.EWMA
@@ -73,7 +77,7 @@ func newEvaluator(cfg *config.Config, m *config.Machine, keys map[string]bool) (
 	}
 	e := &evaluator{id: m.ID, site: cfg.Site.Name, kind: spec.Kind, spec: spec, heatFlowW: m.HeatFlowW(),
 		withhold: cfg.Evaluation.Transient == "withhold", price: cfg.Site.EnergyPrice, baseline: m.Baseline,
-		trends: map[string]*trend.EWMA{}, tau: cfg.Evaluation.TrendTimeConstant.D()}
+		trends: map[string]*trend.EWMA{}, tau: cfg.Evaluation.TrendTimeConstant.D(), sensAge: -1}
 	for _, c := range m.Running {
 		above, below, err := c.Limits()
 		if err != nil {
@@ -203,9 +207,11 @@ func (e *evaluator) evaluate(s *align.Snapshot) (compute.Record, []compute.Event
 			Quality: compute.QualityBad, Reasons: []string{code}}
 	} else {
 		res, err := machine.EvaluateWith(e.spec, &in, &e.sens)
+		e.sensAge = -1
 		if err != nil {
 			rec = machine.BadRecord(now, e.site, e.id, e.kind, err)
 		} else {
+			e.sensAge = res.SensitivityAge
 			rec = res.Record(now, e.site, e.id)
 			e.addDegradation(&rec)
 			e.addCost(&rec)

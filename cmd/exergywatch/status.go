@@ -17,6 +17,7 @@ import (
 
 	"github.com/exergywatch/exergywatch/compute"
 	"github.com/exergywatch/exergywatch/compute/trend"
+	"github.com/exergywatch/exergywatch/ingest/opcuasrc"
 	"github.com/exergywatch/exergywatch/sinks"
 )
 
@@ -137,6 +138,11 @@ type machineView struct {
 	Today         *trend.Day            `json:"today,omitempty"`
 	Inputs        map[string]float64    `json:"inputs_si"`
 	InputProblems map[string]string     `json:"input_problems,omitempty"`
+	// SensitivityAge: where the U95s' sensitivity coefficients come from,
+	// in evaluations (0: computed for these inputs; n: reused from an
+	// evaluation n ticks back at a nearby operating point); absent when
+	// the last tick did not run the model.
+	SensitivityAge *int `json:"u95_sensitivity_age,omitempty"`
 }
 
 type statusView struct {
@@ -147,6 +153,18 @@ type statusView struct {
 	Alerts   []alertView   `json:"active_alerts"`
 	Sinks    []sinks.Stats `json:"sinks"`
 	Ingest   ingestView    `json:"ingest"`
+	Sources  []sourceView  `json:"sources"`
+}
+
+// sourceView is one configured source; OPC UA sources add what they know
+// of the server's certificate.
+type sourceView struct {
+	Name  string                `json:"name"`
+	Kind  string                `json:"kind"`
+	Trust *opcuasrc.TrustStatus `json:"server_certificate,omitempty"`
+	// LastRefusal says why the server's certificate was last refused
+	// (with its thumbprints), until a trusted connection follows.
+	LastRefusal string `json:"last_certificate_refusal,omitempty"`
 }
 
 type ingestView struct {
@@ -176,6 +194,18 @@ func (p *pipeline) status() statusView {
 	m := p.metrics
 	v.Ingest = ingestView{Received: m.Received.Load(), Accepted: m.Accepted.Load(), DecodeErrors: m.DecodeErrors.Load(),
 		QueueDropped: m.QueueDropped.Load(), Reconnects: m.Reconnects.Load(), Evaluations: p.evaluated.Load()}
+	v.Sources = []sourceView{}
+	for i, s := range p.sources {
+		sv := sourceView{Name: s.name, Kind: p.cfg.Sources[i].Kind}
+		if u, ok := s.src.(*opcuasrc.Source); ok {
+			st := u.TrustStatus()
+			sv.Trust = &st
+			if st.LastRefusal != nil {
+				sv.LastRefusal = st.LastRefusal.Error()
+			}
+		}
+		v.Sources = append(v.Sources, sv)
+	}
 	return v
 }
 
@@ -205,6 +235,10 @@ func (p *pipeline) machineStatus(v *statusView, id string, e *evaluator) {
 	}
 	if d, ok := e.daily.Current(); ok {
 		mv.Today = &d
+	}
+	if e.sensAge >= 0 && e.last.Quality != compute.QualityBad {
+		a := e.sensAge
+		mv.SensitivityAge = &a
 	}
 	if e.hasGood {
 		t := e.lastGood.Time

@@ -47,6 +47,18 @@ func TestDaemonReportsUntrustedOPCUAServers(t *testing.T) {
 	tr["sources"] = sources
 	d := startDaemon(t, tr.write(t, dir, "exergywatch.yaml"), nil, pipelineOptions{})
 	defer d.stop()
+	defer func() {
+		// /status names each source's last refusal with the thumbprints.
+		st := d.statusJSON()
+		if len(st.Sources) != 2 {
+			t.Fatalf("/status sources %+v, want 2", st.Sources)
+		}
+		for _, sv := range st.Sources {
+			if sv.Kind != "opcua" || sv.Trust == nil || sv.Trust.Refusals < 1 || !strings.Contains(sv.LastRefusal, "SHA-256") {
+				t.Errorf("/status source %+v: want an OPC UA source with a counted refusal and its thumbprint", sv)
+			}
+		}
+	}()
 	const family = "exergywatch_opcua_untrusted_server_refusals_total"
 	waitFor(t, 30*time.Second, "a refusal counted for both OPC UA endpoints", func() bool {
 		n := 0
