@@ -642,3 +642,58 @@ func TestSatNearCritical(t *testing.T) {
 		}
 	}
 }
+
+// TestConcurrentSaturationCaches: the saturation caches (by pressure and by
+// temperature) shared by goroutines give what a lone goroutine computes:
+// SatT, SatTSlope and (p,T) flashes of CO2 close to its critical
+// temperature (where the phase check solves Maxwell's criterion), with
+// inputs cycling through more values than the caches hold (run with -race).
+func TestConcurrentSaturationCaches(t *testing.T) {
+	f := mustNew(t, "co2")
+	ps := []float64{1e6, 2e6, 3e6, 4e6, 5e6, 6e6}
+	Ts := []float64{299, 300, 301, 302, 303}
+	type satRef struct{ T, dTdp float64 }
+	wantSat := map[float64]satRef{}
+	wantPT := map[float64]thermo.State{}
+	ref := mustNew(t, "co2")
+	for _, p := range ps {
+		T, d, err := ref.SatTSlope(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantSat[p] = satRef{T, d}
+	}
+	for _, T := range Ts {
+		s, err := ref.Flash(thermo.PT, 3e6, T)
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantPT[T] = s
+	}
+	var wg sync.WaitGroup
+	for g := 0; g < 4; g++ {
+		wg.Add(1)
+		go func(g int) {
+			defer wg.Done()
+			for i := 0; i < 60; i++ {
+				p := ps[(i+g)%len(ps)]
+				T, d, err := f.SatTSlope(p)
+				if err != nil || T != wantSat[p].T || d != wantSat[p].dTdp {
+					t.Errorf("goroutine %d: SatTSlope(%g) = %v, %v, %v; want %v", g, p, T, d, err, wantSat[p])
+					return
+				}
+				if T2, err := f.SatT(p); err != nil || T2 != wantSat[p].T {
+					t.Errorf("goroutine %d: SatT(%g) = %v, %v; want %v", g, p, T2, err, wantSat[p].T)
+					return
+				}
+				Tt := Ts[(i*3+g)%len(Ts)]
+				s, err := f.Flash(thermo.PT, 3e6, Tt)
+				if err != nil || s != wantPT[Tt] {
+					t.Errorf("goroutine %d: Flash(PT, 3 MPa, %v) = %+v, %v; want %+v", g, Tt, s, err, wantPT[Tt])
+					return
+				}
+			}
+		}(g)
+	}
+	wg.Wait()
+}
