@@ -1,6 +1,7 @@
 package natsrc
 
 import (
+	"context"
 	"crypto/rand"
 	"crypto/rsa"
 	"crypto/tls"
@@ -15,6 +16,8 @@ import (
 	"time"
 
 	"github.com/nats-io/nats-server/v2/server"
+	"github.com/nats-io/nats.go"
+	"github.com/nats-io/nats.go/jetstream"
 )
 
 // natsServer is a real embedded nats-server that a test can stop and
@@ -113,4 +116,27 @@ func testCA(t testing.TB) (string, *tls.Config) {
 	}
 	cert := tls.Certificate{Certificate: [][]byte{srvDER}, PrivateKey: srvKey}
 	return caFile, &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
+}
+
+// jetStreamWith starts an embedded server with JetStream and a stream
+// named name on subject (memory storage), and returns the server, a
+// connection (closed at the end of the test) and its JetStream context.
+func jetStreamWith(t testing.TB, name, subject string) (*natsServer, *nats.Conn, jetstream.JetStream) {
+	t.Helper()
+	ns := startNATS(t, baseOpts(t, true))
+	nc, err := nats.Connect(ns.url())
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(nc.Close)
+	js, err := jetstream.New(nc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
+	defer cancel()
+	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: name, Subjects: []string{subject}}); err != nil {
+		t.Fatal(err)
+	}
+	return ns, nc, js
 }

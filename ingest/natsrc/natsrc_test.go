@@ -243,18 +243,9 @@ func noLoss(t *testing.T, policy string) {
 // TestJetStreamAckAfterSnapshotRelease: a message stays unacknowledged
 // until the snapshot holding its samples is released.
 func TestJetStreamAckAfterSnapshotRelease(t *testing.T) {
-	ns := startNATS(t, baseOpts(t, true))
-	pub, err := nats.Connect(ns.url())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pub.Close()
-	js, _ := jetstream.New(pub)
+	ns, _, js := jetStreamWith(t, "S", "t.>")
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
 	defer cancel()
-	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "S", Subjects: []string{"t.>"}}); err != nil {
-		t.Fatal(err)
-	}
 	now := time.Now()
 	body := fmt.Sprintf(`[{"tag":"p1","value":5,"ts":%d},{"tag":"unmapped","value":1}]`, now.UnixMilli())
 	if _, err := js.Publish(ctx, "t.a", []byte(body)); err != nil {
@@ -427,18 +418,9 @@ func TestAuthentication(t *testing.T) {
 // TestJetStreamRefusals: a missing stream, or a durable whose ack policy
 // cannot be changed, end Run with an error instead of retrying forever.
 func TestJetStreamRefusals(t *testing.T) {
-	ns := startNATS(t, baseOpts(t, true))
-	pub, err := nats.Connect(ns.url())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer pub.Close()
-	js, _ := jetstream.New(pub)
+	ns, _, js := jetStreamWith(t, "S", "s.>")
 	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
 	defer cancel()
-	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "S", Subjects: []string{"s.>"}}); err != nil {
-		t.Fatal(err)
-	}
 	if _, err := js.CreateOrUpdateConsumer(ctx, "S", jetstream.ConsumerConfig{Durable: "d", AckPolicy: jetstream.AckExplicitPolicy}); err != nil {
 		t.Fatal(err)
 	}
@@ -464,18 +446,9 @@ func TestJetStreamRefusals(t *testing.T) {
 // TestStreamSeqMatchesMetadata compares the fast parser with nats.go's
 // own metadata on real messages from the embedded server.
 func TestStreamSeqMatchesMetadata(t *testing.T) {
-	ns := startNATS(t, baseOpts(t, true))
-	nc, err := nats.Connect(ns.url())
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer nc.Close()
-	js, _ := jetstream.New(nc)
+	_, _, js := jetStreamWith(t, "M", "m.>")
 	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
 	defer cancel()
-	if _, err := js.CreateStream(ctx, jetstream.StreamConfig{Name: "M", Subjects: []string{"m.>"}}); err != nil {
-		t.Fatal(err)
-	}
 	for i := 0; i < 5; i++ {
 		if _, err := js.Publish(ctx, "m.x", []byte("x")); err != nil {
 			t.Fatal(err)
