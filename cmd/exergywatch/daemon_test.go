@@ -69,14 +69,7 @@ func TestRunToVictoriaMetrics(t *testing.T) {
 	f := startFeeder(t, ns.ClientURL(), steadyPlant(t), 100*time.Millisecond, nil)
 	defer f.stop()
 	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
-	waitFor(t, 40*time.Second, "15 running records of every machine", func() bool {
-		for _, m := range demoMachines {
-			if d.countWhere(m, usable) < 15 {
-				return false
-			}
-		}
-		return true
-	}, d.summary)
+	d.waitEveryMachine(40*time.Second, 15)
 	if err := d.stop(); err != nil {
 		t.Fatalf("daemon stopped with %v", err)
 	}
@@ -808,14 +801,7 @@ func TestRunStopsCleanly(t *testing.T) {
 
 	// Cycle 1: runDaemon, context cancelled.
 	d := startDaemon(t, cfgPath, nil, pipelineOptions{})
-	waitFor(t, 30*time.Second, "10 running records of every machine", func() bool {
-		for _, m := range demoMachines {
-			if d.countWhere(m, usable) < 10 {
-				return false
-			}
-		}
-		return true
-	}, d.summary)
+	d.waitEveryMachine(30*time.Second, 10)
 	if err := d.stop(); err != nil {
 		t.Fatalf("runDaemon returned %v", err)
 	}

@@ -872,3 +872,16 @@ func writeFile(t testing.TB, path string, b []byte) {
 		t.Fatal(err)
 	}
 }
+
+// waitEveryMachine waits until every demo machine has n usable records.
+func (d *daemon) waitEveryMachine(timeout time.Duration, n int) {
+	d.t.Helper()
+	waitFor(d.t, timeout, fmt.Sprintf("%d running records of every machine", n), func() bool {
+		for _, m := range demoMachines {
+			if d.countWhere(m, usable) < n {
+				return false
+			}
+		}
+		return true
+	}, d.summary)
+}
